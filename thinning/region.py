@@ -1,0 +1,387 @@
+"""The sidelobe region on a grid of pattern samples, and the figures taken over it.
+
+Both pattern engines (FFT on a lattice, direct summation off it) hand over the power pattern
+on the same kind of grid: the half plane u ≥ 0 of a regular u-v grid (|AF(−u, −v)| =
+|AF(u, v)| for real excitations, so the other half adds nothing), columns ``c`` at
+``u = c·du`` and storage rows ``s`` holding the signed row ``r`` at ``v = r·dv``, with row 0
+and column 0 at the beam peak. For the FFT grid the pattern is periodic in u and v; each
+sample then stands for every alias of its direction, and the region counts how many of
+those aliases fall in the disc of radius 1 + sin θmax (conventions.md, "Pattern"). A grating
+lobe that enters the disc is therefore sidelobe region, as it should be.
+
+The main beam is cut ray by ray: every sample in a window around the peak has a parent one
+step closer to the peak along the same ray; a sample belongs to the main beam when the pattern
+never rises along its chain of parents back to the peak (the ray has not yet passed its first
+local minimum). The chains are resolved for a whole stack of patterns at once by pointer
+jumping, in log₂(window radius) vectorised steps.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["SampleGrid", "SampledRegion", "Reduction"]
+
+#: Radius of the first main-beam window, in samples per oversampling factor. The first null
+#: of a uniformly filled aperture lies about one oversampling factor of samples from the peak;
+#: a window three times wider holds the main beam of tapered and thinned apertures too, and is
+#: doubled (for the patterns that need it) when a beam reaches its rim.
+WINDOW_NULLS = 3.0
+
+
+@dataclass(frozen=True)
+class SampleGrid:
+    """Geometry of a half-plane grid of pattern samples.
+
+    Parameters
+    ----------
+    nr, nc : int
+        Storage rows and columns.
+    du, dv : float  [1]
+        Sample spacing in direction cosines (dv = 0 for a linear array: one row at v = 0).
+    period : (float, float or None) or None  [1]
+        (Tu, Tv) for a periodic (FFT) grid, None for a direct grid.
+    n_full_cols : int
+        Columns of the full (not half) grid: the FFT length along u for a periodic grid,
+        ``2·nc − 1`` for a direct grid.
+    """
+
+    nr: int
+    nc: int
+    du: float
+    dv: float
+    period: tuple[float, float | None] | None
+    n_full_cols: int
+
+    @property
+    def periodic(self) -> bool:
+        return self.period is not None
+
+    @property
+    def max_row(self) -> int:
+        """Largest |r| that one storage row represents without ambiguity."""
+        return (self.nr - 1) // 2
+
+    @property
+    def signed_rows(self) -> np.ndarray:
+        """Signed row index of each storage row (row s holds r = s, or s − nr past the middle)."""
+        s = np.arange(self.nr)
+        return np.where(s <= self.nr // 2, s, s - self.nr)
+
+    @property
+    def u(self) -> np.ndarray:
+        return np.arange(self.nc) * self.du
+
+    @property
+    def v(self) -> np.ndarray:
+        return self.signed_rows * self.dv
+
+    @property
+    def col_mult(self) -> np.ndarray:
+        """How many directions each column stands for: 2 where the mirror (−u, −v) is not stored."""
+        m = np.full(self.nc, 2.0)
+        m[0] = 1.0
+        if self.periodic and self.n_full_cols % 2 == 0:
+            m[-1] = 1.0  # the Nyquist column is its own mirror
+        return m
+
+    def flat(self, r, c) -> np.ndarray:
+        """Storage index of signed row r and column c."""
+        return (np.asarray(r) % self.nr) * self.nc + np.asarray(c)
+
+    def neighbour(self, r, c, dr: int, dc: int) -> np.ndarray:
+        """Storage index of the neighbour (r + dr, c + dc), or −1 where the grid has none.
+
+        Columns left of u = 0 are read from their mirror images; a periodic grid wraps.
+        """
+        r2 = np.asarray(r) + dr
+        c2 = np.asarray(c) + dc
+        left = c2 < 0
+        r2 = np.where(left, -r2, r2)
+        c2 = np.where(left, -c2, c2)
+        ok = np.ones(np.shape(c2), dtype=bool)
+        if self.nr == 1:
+            ok &= r2 == 0
+        if self.periodic:
+            right = c2 > self.nc - 1
+            r2 = np.where(right, -r2, r2)
+            c2 = np.where(right, self.n_full_cols - c2, c2)
+        else:
+            ok &= (c2 <= self.nc - 1) & (np.abs(r2) <= self.max_row)
+        idx = self.flat(r2, np.clip(c2, 0, self.nc - 1))
+        return np.where(ok, idx, -1)
+
+
+@dataclass
+class _Window:
+    """Samples around the peak where the main beam is looked for, with their ray parents."""
+
+    radius: float
+    flat: np.ndarray  # storage index of each window sample, nearest to the peak first
+    rows: np.ndarray
+    cols: np.ndarray
+    parent: np.ndarray  # position (in this window) of each sample's parent
+    jumps: list = field(default_factory=list)  # parent^(2^k) for k = 0, 1, ...
+    rim: np.ndarray = None  # samples on the outermost ring
+    capped: bool = False  # the window already spans the whole grid
+    weight: np.ndarray = None  # region weight of each window sample
+    w0: np.ndarray = None  # weight of the peak's own alias (the one the main beam removes)
+    outer_mask: np.ndarray = None  # 1 for region samples outside the window, else 0
+
+    def main_beam(self, pw: np.ndarray) -> np.ndarray:
+        """Main-beam membership of the window samples of a stack of patterns (B, n)."""
+        ok = pw <= pw[:, self.parent]
+        for jump in self.jumps:
+            ok &= ok[:, jump]
+        return ok
+
+
+@dataclass
+class Reduction:
+    """Figures of a stack of patterns over the sidelobe region (normalised to the peak).
+
+    Attributes
+    ----------
+    peak : (B,) array   the beam peak, |Σa|²
+    psl : (B,) array  [1]   largest sample in the sidelobe region (not refined)
+    asl : (B,) array  [1]   weighted mean over the sidelobe region
+    argmax : (B,) array of int   storage index of the largest sample
+    main_beam_weight : list of arrays   per pattern, the weight the main beam removed from
+        each window sample (for candidate searches)
+    windows : list   per pattern, the window used
+    """
+
+    peak: np.ndarray
+    psl: np.ndarray
+    asl: np.ndarray
+    argmax: np.ndarray
+    main_beam_weight: list
+    windows: list
+
+
+class SampledRegion:
+    """The sidelobe region (a disc in u-v, less the main beam) on a :class:`SampleGrid`.
+
+    Parameters
+    ----------
+    grid : SampleGrid
+    radius : float  [1]
+        Radius of the disc: 1 + sin θmax (or 1 for broadside only).
+    oversampling : float
+        Samples per first-null width, which sets the size of the main-beam window.
+    """
+
+    def __init__(self, grid: SampleGrid, radius: float, oversampling: float):
+        self.grid = grid
+        self.radius = float(radius)
+        self.oversampling = float(oversampling)
+        u = grid.u[None, :]
+        v = grid.v[:, None]
+        r2 = self.radius**2 * (1 + 1e-12)
+        principal = (u**2 + v**2) <= r2
+        if grid.periodic:
+            tu, tv = grid.period
+            count = np.zeros((grid.nr, grid.nc))
+            np_u = int(math.ceil(self.radius / tu)) + 1
+            qs = [0] if tv is None else range(-(int(math.ceil(self.radius / tv)) + 1),
+                                                int(math.ceil(self.radius / tv)) + 2)
+            for p in range(-np_u, np_u + 1):
+                for q in qs:
+                    vv = v if tv is None else v + q * tv
+                    count += ((u + p * tu) ** 2 + vv**2) <= r2
+        else:
+            count = principal.astype(float)
+        mult = grid.col_mult[None, :]
+        self.weight = (count * mult).ravel()
+        self.weight32 = self.weight.astype(np.float32)
+        self.w0 = (principal * mult).ravel()
+        self.total_weight = float(self.weight.sum())
+        self.in_disc = count.ravel() > 0
+        self._windows: dict[float, _Window] = {}
+
+    # -- the main-beam window -------------------------------------------------------------
+    def window(self, radius: float | None = None) -> _Window:
+        """The main-beam window of the given radius in samples (cached)."""
+        g = self.grid
+        if radius is None:
+            radius = WINDOW_NULLS * self.oversampling
+        cmax = g.nc - 1
+        rmax = g.max_row if g.nr > 1 else 0
+        radius = float(min(radius, max(cmax, rmax) + 1.0))
+        if radius in self._windows:
+            return self._windows[radius]
+        cc, rr = np.meshgrid(np.arange(0, min(cmax, int(radius)) + 1),
+                             np.arange(-min(rmax, int(radius)), min(rmax, int(radius)) + 1))
+        cc, rr = cc.ravel(), rr.ravel()
+        rho = np.hypot(cc, rr)
+        keep = rho <= radius
+        cc, rr, rho = cc[keep], rr[keep], rho[keep]
+        order = np.lexsort((rr, cc, rho))
+        cc, rr, rho = cc[order], rr[order], rho[order]
+        scale = np.where(rho > 0, (rho - 1.0) / np.where(rho > 0, rho, 1.0), 0.0)
+        pc = np.rint(cc * scale).astype(np.int64)
+        pr = np.rint(rr * scale).astype(np.int64)
+        pos = {(int(c), int(r)): i for i, (c, r) in enumerate(zip(cc, rr, strict=True))}
+        parent = np.array([pos[(int(c), int(r))] for c, r in zip(pc, pr, strict=True)],
+                          dtype=np.int64)
+        depth = 1
+        probe = np.arange(parent.size)
+        while True:  # longest chain to the peak
+            nxt = parent[probe]
+            if np.array_equal(nxt, probe):
+                break
+            probe = nxt
+            depth += 1
+        jumps = []
+        j = parent
+        for _ in range(max(1, math.ceil(math.log2(depth + 1)))):
+            jumps.append(j)
+            j = j[j]
+        capped = radius >= cmax and (g.nr == 1 or radius >= rmax)
+        flat = g.flat(rr, cc)
+        outer = (self.weight > 0).astype(np.float32)
+        outer[flat] = 0.0
+        w = _Window(
+            radius=radius, flat=flat, rows=rr, cols=cc, parent=parent, jumps=jumps,
+            rim=(rho > radius - 1.0) & ((cc >= cmax) == False) & ~capped,  # noqa: E712
+            capped=capped, weight=self.weight[flat], w0=self.w0[flat], outer_mask=outer,
+        )
+        self._windows[radius] = w
+        return w
+
+    # -- reductions -----------------------------------------------------------------------
+    def reduce(self, power: np.ndarray) -> Reduction:
+        """PSL (on the samples) and ASL of a stack of power patterns.
+
+        Parameters
+        ----------
+        power : (B, nr·nc) array
+            |AF|² on the grid, not normalised; sample 0 must be the beam peak.
+        """
+        power = np.atleast_2d(power)
+        b = power.shape[0]
+        out = Reduction(
+            peak=power[:, 0].astype(np.float64),
+            psl=np.zeros(b), asl=np.zeros(b), argmax=np.zeros(b, dtype=np.int64),
+            main_beam_weight=[None] * b, windows=[None] * b,
+        )
+        todo = np.arange(b)
+        radius = None
+        while todo.size:
+            win = self.window(radius)
+            p = power[todo]
+            pw = p[:, win.flat]
+            mb = win.main_beam(pw)
+            over = (mb & win.rim).any(axis=1) if not win.capped else np.zeros(todo.size, bool)
+            done = ~over
+            if done.any():
+                self._finish(out, todo[done], p[done], pw[done], mb[done], win)
+            todo = todo[over]
+            radius = 2.0 * win.radius
+        return out
+
+    def _finish(self, out, idx, p, pw, mb, win):
+        removed = mb * win.w0[None, :]
+        weff = win.weight[None, :] - removed
+        in_win = np.where(weff > 0, pw, 0)
+        outer = p * win.outer_mask.astype(p.dtype)[None, :]
+        o_arg = outer.argmax(axis=1)
+        w_arg = in_win.argmax(axis=1)
+        o_max = outer[np.arange(len(idx)), o_arg].astype(np.float64)
+        w_max = in_win[np.arange(len(idx)), w_arg].astype(np.float64)
+        weight = self.weight32 if p.dtype == np.float32 else self.weight
+        total = (p @ weight).astype(np.float64) - (removed * pw).sum(axis=1, dtype=np.float64)
+        wsum = self.total_weight - removed.sum(axis=1)
+        peak = out.peak[idx]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out.psl[idx] = np.maximum(o_max, w_max) / peak
+            out.asl[idx] = np.where(wsum > 0, total / np.where(wsum > 0, wsum, 1) / peak, 0.0)
+        out.argmax[idx] = np.where(o_max >= w_max, o_arg, win.flat[w_arg])
+        for k, i in enumerate(idx):
+            out.main_beam_weight[i] = removed[k]
+            out.windows[i] = win
+
+    # -- peak candidates for refinement ---------------------------------------------------
+    def effective_weight(self, red: Reduction, i: int) -> np.ndarray:
+        """Region weight of every sample of pattern i, with its main beam removed."""
+        w = self.weight.copy()
+        win = red.windows[i]
+        w[win.flat] -= red.main_beam_weight[i]
+        return w
+
+    def candidates(self, power1: np.ndarray, weff: np.ndarray, margin_db: float,
+                   cap: int) -> np.ndarray:
+        """Local maxima of one pattern in the sidelobe region worth refining.
+
+        Every sample of the region that is at least as high as each of its neighbours in the
+        region, and within ``margin_db`` of the highest sample, ranked by a parabolic estimate
+        of its lobe's peak; at most ``cap`` of them.
+
+        Returns
+        -------
+        numpy.ndarray of int   storage indices, best first
+        """
+        g = self.grid
+        pm = np.where(weff > 0, power1, -1.0)
+        top = pm.max()
+        if top <= 0:
+            return np.zeros(0, dtype=np.int64)
+        idx = np.flatnonzero(pm >= top * 10 ** (-margin_db / 10))
+        s, c = np.divmod(idx, g.nc)
+        r = g.signed_rows[s]
+        here = pm[idx]
+        is_max = np.ones(idx.size, dtype=bool)
+        offsets = [(0, -1), (0, 1)] if g.nr == 1 else [
+            (dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1) if dr or dc]
+        nb = {}
+        for dr, dc in offsets:
+            n = g.neighbour(r, c, dr, dc)
+            nb[(dr, dc)] = n
+            is_max &= here >= np.where(n >= 0, pm[np.maximum(n, 0)], -1.0)
+        idx, r, c, here = idx[is_max], r[is_max], c[is_max], here[is_max]
+        # rank by a parabolic (in dB) estimate of each lobe's peak, along u and along v
+        logc = np.log(np.maximum(power1[idx], 1e-300))
+        est = logc.copy()
+        axes = [((0, -1), (0, 1))] if g.nr == 1 else [((0, -1), (0, 1)), ((-1, 0), (1, 0))]
+        for lo, hi in axes:
+            vals = []
+            for off in (lo, hi):
+                n = nb[off][is_max]
+                vals.append(np.log(np.maximum(np.where(n >= 0, power1[np.maximum(n, 0)],
+                                                       power1[idx]), 1e-300)))
+            lo_v, hi_v = vals
+            den = lo_v - 2 * logc + hi_v
+            delta = np.where(den < 0, 0.5 * (lo_v - hi_v) / np.where(den < 0, den, -1), 0.0)
+            est += np.where(den < 0, -0.25 * (lo_v - hi_v) * delta, 0.0)
+        order = np.argsort(-est, kind="stable")
+        return idx[order[:cap]]
+
+    def alias_point(self, flat: int, in_main_beam_weight: float) -> np.ndarray:
+        """A direction (u, v) in the disc that sample ``flat`` stands for, outside the main beam.
+
+        Of the sample's aliases inside the disc, the one nearest the centre; the peak's own
+        alias is skipped when the main beam covers the sample.
+        """
+        g = self.grid
+        s, c = divmod(int(flat), g.nc)
+        u0 = c * g.du
+        v0 = g.signed_rows[s] * g.dv
+        if not g.periodic:
+            return np.array([u0, v0])
+        tu, tv = g.period
+        best, best_r = None, math.inf
+        n_u = int(math.ceil(self.radius / tu)) + 1
+        n_v = 0 if tv is None else int(math.ceil(self.radius / tv)) + 1
+        for p in range(-n_u, n_u + 1):
+            for q in range(-n_v, n_v + 1):
+                if p == 0 and q == 0 and in_main_beam_weight > 0:
+                    continue
+                uu = u0 + p * tu
+                vv = v0 + (0.0 if tv is None else q * tv)
+                rr = math.hypot(uu, vv)
+                if rr <= self.radius * (1 + 1e-12) and rr < best_r:
+                    best, best_r = np.array([uu, vv]), rr
+        return best if best is not None else np.array([u0, v0])
