@@ -31,8 +31,9 @@ def _ring_mm(points, source: str | None, field: str) -> np.ndarray:
     try:
         arr = np.asarray(points, dtype=float)
     except (TypeError, ValueError):
+        shown = " ".join(repr(points).split())  # one line, even for a numpy array
         raise GeometryError(
-            f"{where(source, field)}expected a list of [x, y] pairs in mm, got {points!r:.80}"
+            f"{where(source, field)}expected a list of [x, y] pairs in mm, got {shown:.80}"
         ) from None
     if arr.ndim != 2 or arr.shape[1] != 2:
         raise GeometryError(
@@ -41,7 +42,8 @@ def _ring_mm(points, source: str | None, field: str) -> np.ndarray:
     bad = ~np.isfinite(arr)
     if bad.any():
         i = int(np.argwhere(bad)[0][0])
-        raise GeometryError(f"{where(source, field)}point {i} is {points[i]!r}: not a finite number")
+        shown = " ".join(repr(arr[i].tolist()).split())
+        raise GeometryError(f"{where(source, field)}point {i} is {shown}: not a finite number")
     if len(arr) > 1 and np.allclose(arr[0], arr[-1]):
         arr = arr[:-1]  # a closed ring given with its first point repeated
     if len(np.unique(arr, axis=0)) < 3:
@@ -108,8 +110,9 @@ class Aperture:
         try:
             clearance = float(edge_clearance_mm)
         except (TypeError, ValueError):
+            field = "aperture.edge_clearance_mm"
             raise GeometryError(
-                f"{where(source, 'aperture.edge_clearance_mm')}{edge_clearance_mm!r} is not a number"
+                f"{where(source, field)}{edge_clearance_mm!r} is not a number"
             ) from None
         if not math.isfinite(clearance) or clearance < 0:
             raise GeometryError(
@@ -126,6 +129,12 @@ class Aperture:
             if not hr.is_valid:
                 raise GeometryError(
                     f"{where(source, f'aperture.holes_mm[{i}]')}invalid hole: {_reason(hr)}"
+                )
+        for i, h in enumerate(holes):  # name the hole at fault where one alone is
+            one = Polygon(shell, [h])
+            if not one.is_valid:
+                raise GeometryError(
+                    f"{where(source, f'aperture.holes_mm[{i}]')}invalid hole: {_reason(one)}"
                 )
         poly_mm = Polygon(shell, holes)
         if not poly_mm.is_valid:

@@ -63,14 +63,19 @@ class Lattice:
 
     def __post_init__(self):
         if self.kind not in LATTICE_KINDS:
-            raise GeometryError(
-                f"lattice: {self.kind!r} is not one of {', '.join(LATTICE_KINDS)}"
-            )
-        _positive(self.dx, None, "lattice dx")
+            raise GeometryError(f"lattice: {self.kind!r} is not one of {', '.join(LATTICE_KINDS)}")
+        object.__setattr__(self, "dx", _positive(self.dx, None, "lattice dx"))
         if self.kind != "linear":
-            _positive(self.dy, None, "lattice dy")
-        if not all(math.isfinite(float(o)) for o in self.origin):
+            object.__setattr__(self, "dy", _positive(self.dy, None, "lattice dy"))
+        try:
+            ox, oy = (float(o) for o in self.origin)
+        except (TypeError, ValueError):
+            raise GeometryError(
+                f"lattice origin: {self.origin!r} is not an (x, y) pair in metres"
+            ) from None
+        if not (math.isfinite(ox) and math.isfinite(oy)):
             raise GeometryError(f"lattice origin: {self.origin!r} is not a finite point")
+        object.__setattr__(self, "origin", (ox, oy))
 
     @classmethod
     def from_mm(cls, kind, spacing_mm, origin_mm=(0.0, 0.0), source=None) -> Lattice:
@@ -195,7 +200,9 @@ class Lattice:
     def linear_sites(self, count: int, source=None) -> Sites:
         """``count`` sites of a linear lattice, at ``origin + i·dx`` for i = 0 … count − 1."""
         if self.kind != "linear":
-            raise GeometryError(f"{where(source, 'aperture.sites')}only a linear lattice takes a count")
+            raise GeometryError(
+                f"{where(source, 'aperture.sites')}only a linear lattice takes a count"
+            )
         if isinstance(count, bool) or not isinstance(count, int | np.integer) or count < 1:
             raise GeometryError(
                 f"{where(source, 'aperture.sites')}{count!r}: needs a whole number of sites >= 1"
@@ -262,7 +269,7 @@ class Sites:
         return (self.row - r0) * self.grid_shape[1] + (self.col - c0)
 
     def to_grid(self, values, dtype=np.float32) -> np.ndarray:
-        """Scatter per-site values (shape (..., M)) into grids of shape (..., R, C); zeros elsewhere."""
+        """Scatter per-site values (shape (..., M)) into grids (..., R, C); zeros elsewhere."""
         values = np.asarray(values)
         lead = values.shape[:-1]
         R, C = self.grid_shape
@@ -345,12 +352,19 @@ def reciprocal_basis(basis: np.ndarray, wavelength: float) -> np.ndarray:
     Returns
     -------
     (2, 2) array  [1]
-        Zero second column for a linear lattice.
+        For a lattice of rank one (either column of ``basis`` zero) the single reciprocal
+        vector ``λ·a/|a|²`` of the non-zero column ``a`` comes first and the second column is
+        zero; both are zero for a zero basis (a single site).
     """
     basis = np.asarray(basis, dtype=float)
     a1, a2 = basis[:, 0], basis[:, 1]
-    if not np.any(a2):
-        return np.column_stack([wavelength * a1 / float(a1 @ a1), np.zeros(2)])
+    if not np.any(a2) or not np.any(a1):
+        # One row or one column of sites (or a single site): the array factor varies along
+        # the one lattice vector only, and its replicas are lines through m·λ·a/|a|².
+        a = a2 if not np.any(a1) else a1
+        if not np.any(a):
+            return np.zeros((2, 2))
+        return np.column_stack([wavelength * a / float(a @ a), np.zeros(2)])
     return wavelength * np.linalg.inv(basis).T
 
 
@@ -375,9 +389,17 @@ def grating_lobe_positions(basis: np.ndarray, wavelength: float, scan_max: float
     """
     b = reciprocal_basis(basis, wavelength)
     radius = 1.0 + math.sin(scan_max)
-    basis = np.asarray(basis, dtype=float)
-    n1 = int(math.ceil(radius * np.linalg.norm(basis[:, 0]) / wavelength)) + 1
-    n2 = int(math.ceil(radius * np.linalg.norm(basis[:, 1]) / wavelength)) + 1 if np.any(b[:, 1]) else 0
+    # G = m·b₁ + n·b₂ has m = G·a₁/λ and n = G·a₂/λ (a: the direct basis), so
+    # |m| ≤ radius·|a₁|/λ and |n| ≤ radius·|a₂|/λ; for rank one |a| = λ/|b|.
+    if not np.any(b[:, 0]):
+        return np.zeros((0, 2))
+    if np.any(b[:, 1]):
+        a = np.asarray(basis, dtype=float)
+        n1 = int(math.ceil(radius * np.linalg.norm(a[:, 0]) / wavelength)) + 1
+        n2 = int(math.ceil(radius * np.linalg.norm(a[:, 1]) / wavelength)) + 1
+    else:
+        n1 = int(math.ceil(radius / np.linalg.norm(b[:, 0]))) + 1
+        n2 = 0
     m, n = np.meshgrid(np.arange(-n1, n1 + 1), np.arange(-n2, n2 + 1), indexing="ij")
     g = np.outer(m.ravel(), b[:, 0]) + np.outer(n.ravel(), b[:, 1])
     r = np.hypot(g[:, 0], g[:, 1])

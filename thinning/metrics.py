@@ -1,0 +1,248 @@
+"""Figures of merit beyond the sidelobes: directivity, the cell-gain rule, the random-thinning
+expectation, beamwidth and grating lobes.
+
+All of them are computed exactly from the element positions and excitations, with no
+angular integration grid.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import scipy.fft
+import scipy.special
+from scipy.optimize import brentq
+
+__all__ = [
+    "element_kernel",
+    "directivity_grid",
+    "directivity_points",
+    "cell_gain_rule",
+    "linear_gain_rule",
+    "expected_asl_random",
+    "expected_asl_tapered",
+    "half_power_offsets",
+    "beamwidth_deg",
+    "element_beamwidth_deg",
+]
+
+#: Element pairs per chunk of the pairwise directivity sum (float64: 8 bytes each).
+PAIR_CHUNK = 1 << 22
+
+
+def element_kernel(rho, wavelength: float, q: float) -> np.ndarray:
+    """∫ cosᵠθ · exp(j k ρ·r̂) dΩ for element separations ρ  [sr].
+
+    .. math::
+
+        K_q(\\rho) = 2\\pi\\, 2^{\\nu}\\,\\Gamma(\\nu + 1)\\,
+                     \\frac{J_{\\nu+1}(k\\rho)}{(k\\rho)^{\\nu+1}},\\qquad \\nu = \\frac{q - 1}{2}
+
+    over the forward hemisphere (q > 0; Sonine's first finite integral, Watson,
+    *Theory of Bessel Functions*, §12.11), which is 2π·J₁(kρ)/(kρ) for q = 1 and 2π/(q + 1)
+    at ρ = 0. For q = 0 the element is isotropic over the full sphere (conventions.md):
+    K₀(ρ) = 4π·sin(kρ)/(kρ).
+
+    Parameters
+    ----------
+    rho : array_like  [m]
+    wavelength : float  [m]
+    q : float  [1]
+        Element-pattern exponent (q ≥ 0).
+    """
+    z = 2 * math.pi / wavelength * np.asarray(rho, dtype=float)
+    if q == 0:
+        return 4 * math.pi * np.sinc(z / math.pi)
+    nu = (q - 1) / 2
+    small = z < 1e-6
+    zs = np.where(small, 1.0, z)
+    if q == 1:
+        core = scipy.special.j1(zs) / zs
+    else:
+        core = scipy.special.jv(nu + 1, zs) / zs ** (nu + 1)
+    limit = 1.0 / (2 ** (nu + 1) * math.gamma(nu + 2))
+    core = np.where(small, limit, core)
+    return 2 * math.pi * 2**nu * math.gamma(nu + 1) * core
+
+
+def _directivity(peak: float, denominator: float) -> float:
+    return 4 * math.pi * peak / denominator
+
+
+def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0) -> float:
+    """Broadside directivity of excitations on a rectangular index grid  [1, linear].
+
+    .. math::  D = \\frac{4\\pi\\,(\\sum a)^2}{\\sum_{m,n} a_m a_n K_q(|r_m - r_n|)}
+
+    with the double sum taken over lags of the grid's autocorrelation (an FFT, float64).
+
+    Parameters
+    ----------
+    grid : (R, C) array
+    pitch : (float, float)  [m]   grid pitch (gx, gy)
+    wavelength : float  [m]
+    q : float  [1]
+    """
+    a = np.asarray(grid, dtype=np.float64)
+    if a.ndim == 1:
+        a = a[None]
+    r, c = a.shape
+    shape = (scipy.fft.next_fast_len(2 * r - 1, real=True),
+             scipy.fft.next_fast_len(2 * c - 1, real=True))
+    f = scipy.fft.rfft2(a, s=shape)
+    acf = scipy.fft.irfft2(f.real**2 + f.imag**2, s=shape)
+    lag_r = np.arange(shape[0])
+    lag_r = np.where(lag_r < r, lag_r, lag_r - shape[0])
+    lag_c = np.arange(shape[1])
+    lag_c = np.where(lag_c < c, lag_c, lag_c - shape[1])
+    keep_r = np.abs(lag_r) < r
+    keep_c = np.abs(lag_c) < c
+    acf = acf[np.ix_(keep_r, keep_c)]
+    rho = np.hypot(lag_r[keep_r][:, None] * pitch[1], lag_c[keep_c][None, :] * pitch[0])
+    den = float(np.sum(acf * element_kernel(rho, wavelength, q)))
+    return _directivity(float(a.sum()) ** 2, den)
+
+
+def directivity_points(x, y, weights, wavelength: float, q: float = 1.0) -> float:
+    """Broadside directivity of elements at arbitrary positions (pairwise sum, chunked)  [1]."""
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    a = np.asarray(weights, dtype=float)
+    den = 0.0
+    step = max(1, PAIR_CHUNK // max(1, x.size))
+    for s in range(0, x.size, step):
+        rho = np.hypot(x[s : s + step, None] - x[None, :], y[s : s + step, None] - y[None, :])
+        den += float(a[s : s + step] @ element_kernel(rho, wavelength, q) @ a)
+    return _directivity(float(a.sum()) ** 2, den)
+
+
+def cell_gain_rule(n: int, cell_area: float, wavelength: float) -> float:
+    """The cell-gain rule G = 4π·N·A_cell/λ²  [1]; πN on a half-wavelength square lattice.
+
+    Each active element is credited with the gain of one lattice cell (Mailloux, *Phased Array
+    Antenna Handbook*, ch. 1; references.md rows 2 and 15). Mutual coupling and the scan loss
+    cos θ₀ are not included.
+    """
+    return 4 * math.pi * n * cell_area / wavelength**2
+
+
+def linear_gain_rule(n: int, spacing: float, wavelength: float, q: float = 0.0) -> float:
+    """Gain rule of a long broadside linear array  [1].
+
+    .. math::  G \approx \frac{2 N d}{\lambda}\cdot\frac{2\pi}{\int g(\phi)\,d\phi}
+
+    2Nd/λ is the line source of isotropic elements (references.md row 15, common practice);
+    the second factor is the element's directivity in the plane across the line, which is 1
+    for q = 0 and 2π/I_q for cosᵠ elements over a ground plane, with
+    I_q = ∫ cosᵠφ dφ over (−π/2, π/2) = √π·Γ((q + 1)/2)/Γ(q/2 + 1) (π for q = 1).
+    An approximation for long arrays, not an identity.
+    """
+    rule = 2 * n * spacing / wavelength
+    if q > 0:
+        iq = math.sqrt(math.pi) * math.gamma((q + 1) / 2) / math.gamma(q / 2 + 1)
+        rule *= 2 * math.pi / iq
+    return rule
+
+
+def expected_asl_random(n: int, m: int | None, filled_asl: float = 0.0) -> float:
+    """Expected ASL of choosing exactly N of M sites at random  [1, linear].
+
+    With exactly N of M sites on, every site is on with probability N/M and every pair with
+    N(N − 1)/(M(M − 1)), so the expected power pattern is, exactly,
+
+    .. math::
+
+        \frac{E|AF|^2}{N^2} = \frac{M (N - 1)}{N (M - 1)}\,\frac{|F|^2}{M^2}
+                              + \frac{M - N}{N (M - 1)}
+
+    with F the array factor of the M filled sites; averaged over the sidelobe region the first
+    term is the filled aperture's own ASL (``filled_asl``) scaled by M(N − 1)/(N(M − 1)).
+    The second is the thinning term of Lo 1964 and Skolnik, Sherman & Ogg 1964
+    (references.md row 5). With M unknown (None) the sites are taken as unlimited: 1/N.
+
+    Parameters
+    ----------
+    n, m : int   active elements, candidate sites
+    filled_asl : float  [1, linear]   ASL of the filled aperture (0 to leave it out)
+    """
+    if m is None:
+        return 1.0 / n
+    if m <= 1 or n >= m:
+        return float(filled_asl)
+    return filled_asl * m * (n - 1) / (n * (m - 1)) + (m - n) / (n * (m - 1))
+
+
+def expected_asl_tapered(p) -> float:
+    """Expected ASL of independent draws with on-probabilities pₙ  [1, linear].
+
+    .. math::  \\mathrm{ASL} \\approx \\frac{\\sum p_n (1 - p_n)}{(\\sum p_n)^2}
+
+    (Skolnik, Sherman & Ogg, IEEE TAP 12(4), 1964; references.md row 5).
+    """
+    p = np.asarray(p, dtype=float)
+    return float(np.sum(p * (1 - p)) / np.sum(p) ** 2)
+
+
+def half_power_offsets(exact, direction, step: float, which=None) -> tuple[float, float]:
+    """Distances in direction cosines from the beam peak (0, 0) to the half-power points.
+
+    Walks the exact pattern outward along ``±direction`` in steps of ``step`` until it falls
+    below one half, then solves P = 1/2 with Brent's method.
+
+    Parameters
+    ----------
+    exact : GridExact or PointExact
+    direction : (float, float)   unit vector in u-v
+    step : float  [1]   a step well below the beamwidth (a pattern sample spacing)
+
+    Returns
+    -------
+    (d_plus, d_minus) : floats  [1]
+    """
+    dx, dy = direction
+    out = []
+    for sign in (1.0, -1.0):
+        t = step * np.arange(1, 65)
+        found = None
+        start = 0.0
+        while found is None and start < 4.0:
+            pts = start + t
+            p = exact.evaluate(sign * dx * pts, sign * dy * pts, derivatives=False)
+            below = np.flatnonzero(p < 0.5)
+            if below.size:
+                i = below[0]
+                lo = start if i == 0 else pts[i - 1]
+                found = (lo, pts[i])
+            start = pts[-1]
+        if found is None:
+            out.append(math.inf)
+            continue
+
+        def f(s, sign=sign):
+            return float(exact.evaluate([sign * dx * s], [sign * dy * s], derivatives=False)[0]) - 0.5
+
+        out.append(brentq(f, found[0], found[1], xtol=1e-12))
+    return out[0], out[1]
+
+
+def beamwidth_deg(d_plus: float, d_minus: float, u0: float = 0.0) -> float | None:
+    """Half-power beamwidth in degrees of a beam steered to u₀ = sin θ₀ in a principal plane.
+
+    .. math::  \\Delta\\theta = \\arcsin(u_0 + d_+) - \\arcsin(u_0 - d_-)
+
+    which broadens as about 1/cos θ₀ (references.md row 8). Half-power points past the
+    horizon are clipped to it; None if the beam has no half-power point at all.
+    """
+    if not (math.isfinite(d_plus) and math.isfinite(d_minus)):
+        return None
+    hi = math.asin(min(1.0, u0 + d_plus))
+    lo = math.asin(max(-1.0, u0 - d_minus))
+    return math.degrees(hi - lo)
+
+
+def element_beamwidth_deg(q: float) -> float | None:
+    """Half-power width of the cosᵠθ element pattern, 2·arccos(0.5^(1/q)) degrees; None for q = 0."""
+    if q <= 0:
+        return None
+    return math.degrees(2 * math.acos(0.5 ** (1.0 / q)))
