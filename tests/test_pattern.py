@@ -20,8 +20,9 @@ LAM = 0.03  # [m] 10 GHz; every check below is in wavelengths, so the value does
 
 
 def linear_engine(n, spacing=LAM / 2, scan_deg=0.0, **kw):
-    return FFTPatternEngine((1, n), (spacing, spacing), LAM, math.radians(scan_deg),
-                            linear=True, **kw)
+    return FFTPatternEngine(
+        (1, n), (spacing, spacing), LAM, math.radians(scan_deg), linear=True, **kw
+    )
 
 
 # -- Parseval (row 4) ----------------------------------------------------------------------
@@ -88,8 +89,9 @@ def test_difference_set_samples_are_flat(v, members, k, lam_):
 def dirichlet_first_sidelobe_db(n):
     """Peak of the first sidelobe of |sin(N x)/(N sin x)|², found by scipy (reference)."""
     f = lambda x: -((math.sin(n * x) / (n * math.sin(x))) ** 2)  # noqa: E731
-    r = minimize_scalar(f, bounds=(math.pi / n, 2 * math.pi / n), method="bounded",
-                        options={"xatol": 1e-12})
+    r = minimize_scalar(
+        f, bounds=(math.pi / n, 2 * math.pi / n), method="bounded", options={"xatol": 1e-12}
+    )
     return 10 * math.log10(-r.fun)
 
 
@@ -181,8 +183,9 @@ def test_refined_psl_matches_brute_force_planar(seed, scan_deg):
     eng = FFTPatternEngine(a.shape, (LAM / 2, LAM / 2), LAM, math.radians(scan_deg))
     d = eng.detail(a)
     rows, cols = np.nonzero(a)
-    ref = brute_force_psl(cols * LAM / 2, rows * LAM / 2, np.ones(rows.size),
-                          1 + math.sin(math.radians(scan_deg)))
+    ref = brute_force_psl(
+        cols * LAM / 2, rows * LAM / 2, np.ones(rows.size), 1 + math.sin(math.radians(scan_deg))
+    )
     assert 10 * math.log10(d.psl) == pytest.approx(10 * math.log10(ref), abs=0.05)
     # the fast path (refining only the highest sample) is never optimistic beyond 0.05 dB
     # here either: the highest lobe of these arrays is also the highest sample's lobe

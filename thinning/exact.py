@@ -4,7 +4,10 @@ The FFT engine only sees the pattern at its samples; between them a lobe can sta
 about 1.4 dB higher (4× oversampling, a diagonal offset of half a sample on both axes). The
 figures we report come from the exact pattern
 
-.. math::  P(u, v) = \\Big|\\sum_n a_n\\, e^{j k (x_n u + y_n v)}\\Big|^2 \\Big/ \\Big(\\sum_n a_n\\Big)^2
+.. math::
+
+    P(u, v) = \\Big|\\sum_n a_n\\, e^{j k (x_n u + y_n v)}\\Big|^2
+              \\Big/ \\Big(\\sum_n a_n\\Big)^2
 
 and its first and second derivatives, evaluated directly (no angular grid). Two evaluators
 share one interface: :class:`GridExact` for elements on a rectangular index grid (a separable
@@ -140,7 +143,9 @@ class PointExact:
         out = np.zeros((u.size, len(columns)), dtype=complex)
         step = max(1, CHUNK // max(1, u.size))
         for s in range(0, self.kx.size, step):
-            e = np.exp(1j * (np.outer(u, self.kx[s : s + step]) + np.outer(v, self.ky[s : s + step])))
+            e = np.exp(
+                1j * (np.outer(u, self.kx[s : s + step]) + np.outer(v, self.ky[s : s + step]))
+            )
             out += e @ self.w[s : s + step][:, columns]
         return out
 
@@ -199,10 +204,16 @@ def refine_peaks(exact, u, v, step, radius, which=None, linear=False, iterations
         det = hs[:, 0, 0] * hs[:, 1, 1] - hs[:, 0, 1] ** 2
         negdef = (hs[:, 0, 0] < 0) & (det > 0)
         with np.errstate(divide="ignore", invalid="ignore"):
-            inv = np.stack(
-                [np.stack([hs[:, 1, 1], -hs[:, 0, 1]], -1), np.stack([-hs[:, 1, 0], hs[:, 0, 0]], -1)],
-                -2,
-            ) / det[:, None, None]
+            inv = (
+                np.stack(
+                    [
+                        np.stack([hs[:, 1, 1], -hs[:, 0, 1]], -1),
+                        np.stack([-hs[:, 1, 0], hs[:, 0, 0]], -1),
+                    ],
+                    -2,
+                )
+                / det[:, None, None]
+            )
             newton = -np.einsum("mij,mj->mi", inv, gs)
             gnorm = np.linalg.norm(gs, axis=1)
             grad = gs / np.where(gnorm > 0, gnorm, 1.0)[:, None] * trust[:, None]

@@ -88,8 +88,10 @@ def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0) -> float:
     if a.ndim == 1:
         a = a[None]
     r, c = a.shape
-    shape = (scipy.fft.next_fast_len(2 * r - 1, real=True),
-             scipy.fft.next_fast_len(2 * c - 1, real=True))
+    shape = (
+        scipy.fft.next_fast_len(2 * r - 1, real=True),
+        scipy.fft.next_fast_len(2 * c - 1, real=True),
+    )
     f = scipy.fft.rfft2(a, s=shape)
     acf = scipy.fft.irfft2(f.real**2 + f.imag**2, s=shape)
     lag_r = np.arange(shape[0])
@@ -128,7 +130,7 @@ def cell_gain_rule(n: int, cell_area: float, wavelength: float) -> float:
 
 
 def linear_gain_rule(n: int, spacing: float, wavelength: float, q: float = 0.0) -> float:
-    """Gain rule of a long broadside linear array  [1].
+    r"""Gain rule of a long broadside linear array  [1].
 
     .. math::  G \approx \frac{2 N d}{\lambda}\cdot\frac{2\pi}{\int g(\phi)\,d\phi}
 
@@ -146,7 +148,7 @@ def linear_gain_rule(n: int, spacing: float, wavelength: float, q: float = 0.0) 
 
 
 def expected_asl_random(n: int, m: int | None, filled_asl: float = 0.0) -> float:
-    """Expected ASL of choosing exactly N of M sites at random  [1, linear].
+    r"""Expected ASL of choosing exactly N of M sites at random  [1, linear].
 
     With exactly N of M sites on, every site is on with probability N/M and every pair with
     N(N − 1)/(M(M − 1)), so the expected power pattern is, exactly,
@@ -220,7 +222,9 @@ def half_power_offsets(exact, direction, step: float, which=None) -> tuple[float
             continue
 
         def f(s, sign=sign):
-            return float(exact.evaluate([sign * dx * s], [sign * dy * s], derivatives=False)[0]) - 0.5
+            return (
+                float(exact.evaluate([sign * dx * s], [sign * dy * s], derivatives=False)[0]) - 0.5
+            )
 
         out.append(brentq(f, found[0], found[1], xtol=1e-12))
     return out[0], out[1]
@@ -242,7 +246,7 @@ def beamwidth_deg(d_plus: float, d_minus: float, u0: float = 0.0) -> float | Non
 
 
 def element_beamwidth_deg(q: float) -> float | None:
-    """Half-power width of the cosᵠθ element pattern, 2·arccos(0.5^(1/q)) degrees; None for q = 0."""
+    """Half-power width of the cosᵠθ element pattern, 2·arccos(0.5^(1/q)) [deg]; None for q = 0."""
     if q <= 0:
         return None
     return math.degrees(2 * math.acos(0.5 ** (1.0 / q)))

@@ -96,13 +96,22 @@ class _Engine:
     radius: float
 
     def _refine(self, exact, red, flats, which):
-        uv = np.array([
-            self.region.alias_point(f, _mb_weight(red, self.region, w, f))
-            for f, w in zip(flats, which, strict=True)
-        ]).reshape(-1, 2)
+        uv = np.array(
+            [
+                self.region.alias_point(f, _mb_weight(red, self.region, w, f))
+                for f, w in zip(flats, which, strict=True)
+            ]
+        ).reshape(-1, 2)
         g = self.region.grid
-        p, u, v = refine_peaks(exact, uv[:, 0], uv[:, 1], (g.du, g.dv), self.radius,
-                               which=np.asarray(which), linear=self.linear)
+        p, u, v = refine_peaks(
+            exact,
+            uv[:, 0],
+            uv[:, 1],
+            (g.du, g.dv),
+            self.radius,
+            which=np.asarray(which),
+            linear=self.linear,
+        )
         return p, np.column_stack([u, v])
 
     def _detail(self, exact, power1, red) -> PatternDetail:
@@ -112,14 +121,20 @@ class _Engine:
         cand = self.region.candidates(norm, weff, margin, MAX_CANDIDATES)
         psl_s = float(red.psl[0])
         if cand.size == 0:
-            return PatternDetail(0.0, (math.nan, math.nan), 0.0, float(red.asl[0]), 0, norm,
-                                 weff, self.region.grid)
+            return PatternDetail(
+                0.0, (math.nan, math.nan), 0.0, float(red.asl[0]), 0, norm, weff, self.region.grid
+            )
         p, uv = self._refine(exact, red, cand, np.zeros(cand.size, dtype=np.int64))
         best = int(np.argmax(p))
         return PatternDetail(
-            psl=float(max(p[best], psl_s)), psl_uv=(float(uv[best, 0]), float(uv[best, 1])),
-            psl_sampled=psl_s, asl=float(red.asl[0]), refined=int(cand.size), power=norm,
-            sidelobe_weight=weff, grid=self.region.grid,
+            psl=float(max(p[best], psl_s)),
+            psl_uv=(float(uv[best, 0]), float(uv[best, 1])),
+            psl_sampled=psl_s,
+            asl=float(red.asl[0]),
+            refined=int(cand.size),
+            power=norm,
+            sidelobe_weight=weff,
+            grid=self.region.grid,
         )
 
 
@@ -156,8 +171,18 @@ class FFTPatternEngine(_Engine):
         PSL is always computed in float64.
     """
 
-    def __init__(self, shape, pitch, wavelength, scan_max=0.0, oversampling=4.0, linear=False,
-                 pad=None, workers=1, dtype=np.float32):
+    def __init__(
+        self,
+        shape,
+        pitch,
+        wavelength,
+        scan_max=0.0,
+        oversampling=4.0,
+        linear=False,
+        pad=None,
+        workers=1,
+        dtype=np.float32,
+    ):
         r, c = int(shape[0]), int(shape[1])
         self.linear = bool(linear)
         self.shape = (r, c)
@@ -180,8 +205,12 @@ class FFTPatternEngine(_Engine):
         tu = self.wavelength / gx
         tv = None if self.linear else self.wavelength / gy
         grid = SampleGrid(
-            nr=pr, nc=pc // 2 + 1, du=tu / pc, dv=0.0 if self.linear else tv / pr,
-            period=(tu, tv), n_full_cols=pc,
+            nr=pr,
+            nc=pc // 2 + 1,
+            du=tu / pc,
+            dv=0.0 if self.linear else tv / pr,
+            period=(tu, tv),
+            n_full_cols=pc,
         )
         # main-beam window in samples: the oversampling actually achieved on the finer axis
         self.region = SampledRegion(grid, self.radius, max(pc / c, 1.0 if self.linear else pr / r))
@@ -197,7 +226,9 @@ class FFTPatternEngine(_Engine):
         elif a.ndim == 2:
             a = a[None]
         if a.shape[1:] != self.shape:
-            raise ValueError(f"excitation grids of shape {a.shape[1:]}, engine built for {self.shape}")
+            raise ValueError(
+                f"excitation grids of shape {a.shape[1:]}, engine built for {self.shape}"
+            )
         return a
 
     def power(self, grids) -> np.ndarray:
@@ -226,8 +257,12 @@ class FFTPatternEngine(_Engine):
         red = self.region.reduce(self.power(a))
         b = a.shape[0]
         if not refine:
-            uv = np.array([self.region.alias_point(f, _mb_weight(red, self.region, i, f))
-                           for i, f in enumerate(red.argmax)]).reshape(-1, 2)
+            uv = np.array(
+                [
+                    self.region.alias_point(f, _mb_weight(red, self.region, i, f))
+                    for i, f in enumerate(red.argmax)
+                ]
+            ).reshape(-1, 2)
             return Scores(red.psl.copy(), red.asl.copy(), uv)
         p, uv = self._refine(self.exact(a), red, red.argmax, np.arange(b))
         return Scores(np.maximum(p, red.psl), red.asl.copy(), uv)

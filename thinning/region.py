@@ -186,8 +186,13 @@ class SampledRegion:
             tu, tv = grid.period
             count = np.zeros((grid.nr, grid.nc))
             np_u = int(math.ceil(self.radius / tu)) + 1
-            qs = [0] if tv is None else range(-(int(math.ceil(self.radius / tv)) + 1),
-                                                int(math.ceil(self.radius / tv)) + 2)
+            qs = (
+                [0]
+                if tv is None
+                else range(
+                    -(int(math.ceil(self.radius / tv)) + 1), int(math.ceil(self.radius / tv)) + 2
+                )
+            )
             for p in range(-np_u, np_u + 1):
                 for q in qs:
                     vv = v if tv is None else v + q * tv
@@ -213,8 +218,10 @@ class SampledRegion:
         radius = float(min(radius, max(cmax, rmax) + 1.0))
         if radius in self._windows:
             return self._windows[radius]
-        cc, rr = np.meshgrid(np.arange(0, min(cmax, int(radius)) + 1),
-                             np.arange(-min(rmax, int(radius)), min(rmax, int(radius)) + 1))
+        cc, rr = np.meshgrid(
+            np.arange(0, min(cmax, int(radius)) + 1),
+            np.arange(-min(rmax, int(radius)), min(rmax, int(radius)) + 1),
+        )
         cc, rr = cc.ravel(), rr.ravel()
         rho = np.hypot(cc, rr)
         keep = rho <= radius
@@ -225,8 +232,9 @@ class SampledRegion:
         pc = np.rint(cc * scale).astype(np.int64)
         pr = np.rint(rr * scale).astype(np.int64)
         pos = {(int(c), int(r)): i for i, (c, r) in enumerate(zip(cc, rr, strict=True))}
-        parent = np.array([pos[(int(c), int(r))] for c, r in zip(pc, pr, strict=True)],
-                          dtype=np.int64)
+        parent = np.array(
+            [pos[(int(c), int(r))] for c, r in zip(pc, pr, strict=True)], dtype=np.int64
+        )
         depth = 1
         probe = np.arange(parent.size)
         while True:  # longest chain to the peak
@@ -245,9 +253,17 @@ class SampledRegion:
         outer = (self.weight > 0).astype(np.float32)
         outer[flat] = 0.0
         w = _Window(
-            radius=radius, flat=flat, rows=rr, cols=cc, parent=parent, jumps=jumps,
+            radius=radius,
+            flat=flat,
+            rows=rr,
+            cols=cc,
+            parent=parent,
+            jumps=jumps,
             rim=(rho > radius - 1.0) & ((cc >= cmax) == False) & ~capped,  # noqa: E712
-            capped=capped, weight=self.weight[flat], w0=self.w0[flat], outer_mask=outer,
+            capped=capped,
+            weight=self.weight[flat],
+            w0=self.w0[flat],
+            outer_mask=outer,
         )
         self._windows[radius] = w
         return w
@@ -265,8 +281,11 @@ class SampledRegion:
         b = power.shape[0]
         out = Reduction(
             peak=power[:, 0].astype(np.float64),
-            psl=np.zeros(b), asl=np.zeros(b), argmax=np.zeros(b, dtype=np.int64),
-            main_beam_weight=[None] * b, windows=[None] * b,
+            psl=np.zeros(b),
+            asl=np.zeros(b),
+            argmax=np.zeros(b, dtype=np.int64),
+            main_beam_weight=[None] * b,
+            windows=[None] * b,
         )
         todo = np.arange(b)
         radius = None
@@ -312,8 +331,9 @@ class SampledRegion:
         w[win.flat] -= red.main_beam_weight[i]
         return w
 
-    def candidates(self, power1: np.ndarray, weff: np.ndarray, margin_db: float,
-                   cap: int) -> np.ndarray:
+    def candidates(
+        self, power1: np.ndarray, weff: np.ndarray, margin_db: float, cap: int
+    ) -> np.ndarray:
         """Local maxima of one pattern in the sidelobe region worth refining.
 
         Every sample of the region that is at least as high as each of its neighbours in the
@@ -334,8 +354,11 @@ class SampledRegion:
         r = g.signed_rows[s]
         here = pm[idx]
         is_max = np.ones(idx.size, dtype=bool)
-        offsets = [(0, -1), (0, 1)] if g.nr == 1 else [
-            (dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1) if dr or dc]
+        offsets = (
+            [(0, -1), (0, 1)]
+            if g.nr == 1
+            else [(dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1) if dr or dc]
+        )
         nb = {}
         for dr, dc in offsets:
             n = g.neighbour(r, c, dr, dc)
@@ -350,8 +373,11 @@ class SampledRegion:
             vals = []
             for off in (lo, hi):
                 n = nb[off][is_max]
-                vals.append(np.log(np.maximum(np.where(n >= 0, power1[np.maximum(n, 0)],
-                                                       power1[idx]), 1e-300)))
+                vals.append(
+                    np.log(
+                        np.maximum(np.where(n >= 0, power1[np.maximum(n, 0)], power1[idx]), 1e-300)
+                    )
+                )
             lo_v, hi_v = vals
             den = lo_v - 2 * logc + hi_v
             delta = np.where(den < 0, 0.5 * (lo_v - hi_v) / np.where(den < 0, den, -1), 0.0)

@@ -61,8 +61,9 @@ def _clean(x, digits=6):
     return round(float(x), digits)
 
 
-def layout_engine(layout: Layout, wavelength: float, scan_max: float, oversampling: float = 4.0,
-                  workers: int = -1):
+def layout_engine(
+    layout: Layout, wavelength: float, scan_max: float, oversampling: float = 4.0, workers: int = -1
+):
     """The pattern engine for a layout, its excitation and its exact evaluator.
 
     Returns
@@ -75,11 +76,25 @@ def layout_engine(layout: Layout, wavelength: float, scan_max: float, oversampli
         rows, cols = fit.shape
         grid = np.zeros((rows, cols), dtype=np.float64)
         grid[fit.row, fit.col] = layout.weights
-        eng = FFTPatternEngine((rows, cols), fit.pitch, wavelength, scan_max, oversampling,
-                               linear=fit.linear, workers=workers)
+        eng = FFTPatternEngine(
+            (rows, cols),
+            fit.pitch,
+            wavelength,
+            scan_max,
+            oversampling,
+            linear=fit.linear,
+            workers=workers,
+        )
         return eng, grid, eng.exact(grid), fit
-    eng = DirectPatternEngine(layout.x, layout.y, layout.weights, wavelength, scan_max,
-                              oversampling, linear=layout.is_linear)
+    eng = DirectPatternEngine(
+        layout.x,
+        layout.y,
+        layout.weights,
+        wavelength,
+        scan_max,
+        oversampling,
+        linear=layout.is_linear,
+    )
     return eng, None, eng.pexact, None
 
 
@@ -109,9 +124,15 @@ def _lattice_sites(fit, basis_idx) -> np.ndarray:
     return on & inside
 
 
-def score_layout(layout: Layout, frequency: float, scan_max: float = 0.0, q: float = 1.0,
-                 sites: int | None = None, oversampling: float = 4.0,
-                 workers: int = -1) -> ScoreResult:
+def score_layout(
+    layout: Layout,
+    frequency: float,
+    scan_max: float = 0.0,
+    q: float = 1.0,
+    sites: int | None = None,
+    oversampling: float = 4.0,
+    workers: int = -1,
+) -> ScoreResult:
     """All figures of a layout.
 
     Parameters
@@ -161,8 +182,10 @@ def score_layout(layout: Layout, frequency: float, scan_max: float = 0.0, q: flo
             basis_note = "4π·N·A_cell/λ² (lattice cell)"
             glob = grating_lobe_positions(basis, lam, scan_max)
             lattice_info = {
-                "kind": "grid", "pitch_mm": [gx * 1e3, gy * 1e3],
-                "basis_mm": (basis.T * 1e3).round(6).tolist(), "cell_area_mm2": cell * 1e6,
+                "kind": "grid",
+                "pitch_mm": [gx * 1e3, gy * 1e3],
+                "basis_mm": (basis.T * 1e3).round(6).tolist(),
+                "cell_area_mm2": cell * 1e6,
             }
         lattice_info["fit_residual_um"] = fit.residual * 1e6
     else:
@@ -172,7 +195,9 @@ def score_layout(layout: Layout, frequency: float, scan_max: float = 0.0, q: flo
         if layout.is_linear:
             step = float(np.ptp(layout.x)) / max(n - 1, 1)
             rule = metrics.linear_gain_rule(n, step, lam, q)
-            basis_note = "2·N·d/λ × element directivity across the line, d the mean spacing (off-lattice)"
+            basis_note = (
+                "2·N·d/λ × element directivity across the line, d the mean spacing (off-lattice)"
+            )
         else:
             hull = shapely.MultiPoint(np.column_stack([layout.x, layout.y])).convex_hull
             cell = hull.area / n if hull.area > 0 else (lam / 2) ** 2

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import math
 
 import click
 
@@ -39,8 +38,10 @@ def format_table(r: dict) -> str:
         ("HPBW broadside x-z / y-z", f"{pair(r['hpbw_deg'])} deg"),
         ("HPBW at scan edge x-z / y-z", f"{pair(r['hpbw_scan_deg'])} deg"),
         ("grating lobes in cone", "yes" if r["grating_lobes"] else "no"),
-        ("pattern evaluation", f"{r['evaluation']['engine']}, "
-                               f"{r['evaluation']['lobes_refined']} lobes refined"),
+        (
+            "pattern evaluation",
+            f"{r['evaluation']['engine']}, {r['evaluation']['lobes_refined']} lobes refined",
+        ),
     ]
     w = max(len(k) for k, _ in rows)
     lines = [f"{k:<{w}}  {v}" for k, v in rows]
@@ -50,16 +51,42 @@ def format_table(r: dict) -> str:
 
 @cli.command()
 @click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
-@click.option("--freq-ghz", type=float, required=True, callback=check_frequency,
-              help="Operating frequency [GHz].")
-@click.option("--scan-max-deg", type=float, default=0.0, show_default=True, callback=check_angle,
-              help="Half-angle of the scan cone [deg].")
-@click.option("--element-exponent", type=float, default=1.0, show_default=True,
-              callback=check_exponent, help="Element power pattern cos^Q(theta); 0 = isotropic.")
-@click.option("--sites", type=click.IntRange(min=1), default=None,
-              help="Candidate sites M the layout was thinned from (for the expected ASL).")
-@click.option("--oversampling", type=click.FloatRange(min=2.0, max=32.0), default=4.0,
-              show_default=True, help="Pattern samples per null width, per axis.")
+@click.option(
+    "--freq-ghz",
+    type=float,
+    required=True,
+    callback=check_frequency,
+    help="Operating frequency [GHz].",
+)
+@click.option(
+    "--scan-max-deg",
+    type=float,
+    default=0.0,
+    show_default=True,
+    callback=check_angle,
+    help="Half-angle of the scan cone [deg].",
+)
+@click.option(
+    "--element-exponent",
+    type=float,
+    default=1.0,
+    show_default=True,
+    callback=check_exponent,
+    help="Element power pattern cos^Q(theta); 0 = isotropic.",
+)
+@click.option(
+    "--sites",
+    type=click.IntRange(min=1),
+    default=None,
+    help="Candidate sites M the layout was thinned from (for the expected ASL).",
+)
+@click.option(
+    "--oversampling",
+    type=click.FloatRange(min=2.0, max=32.0),
+    default=4.0,
+    show_default=True,
+    help="Pattern samples per null width, per axis.",
+)
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
 def score(layout_csv, freq_ghz, scan_max_deg, element_exponent, sites, oversampling, as_json):
     """Score a layout: PSL, ASL, directivity, beamwidth and grating lobes."""
@@ -70,10 +97,18 @@ def score(layout_csv, freq_ghz, scan_max_deg, element_exponent, sites, oversampl
 
     layout = read_layout_csv(layout_csv)
     if sites is not None and sites < len(layout):
-        raise LayoutError(f"--sites {sites}: fewer candidate sites than the {len(layout)} "
-                          f"elements in {layout_csv}")
-    result = score_layout(layout, ghz_to_hz(freq_ghz), deg_to_rad(scan_max_deg),
-                          element_exponent, sites=sites, oversampling=oversampling).to_dict()
+        raise LayoutError(
+            f"--sites {sites}: fewer candidate sites than the {len(layout)} "
+            f"elements in {layout_csv}"
+        )
+    result = score_layout(
+        layout,
+        ghz_to_hz(freq_ghz),
+        deg_to_rad(scan_max_deg),
+        element_exponent,
+        sites=sites,
+        oversampling=oversampling,
+    ).to_dict()
     if as_json:
         click.echo(json.dumps(result, allow_nan=False))
     else:
