@@ -228,12 +228,15 @@ def refine_peaks(exact, u, v, step, radius, which=None, linear=False, iterations
         tu, tv = tu * shrink, tv * shrink
         tp, tg, th = exact.evaluate(tu, tv, which)
         better = tp > bp
+        moved = np.hypot((tu - bu) / du, (tv - bv) / dv)
         bu = np.where(better, tu, bu)
         bv = np.where(better, tv, bv)
         bp = np.where(better, tp, bp)
         g = np.where(better[:, None], tg, g)
         h = np.where(better[:, None, None], th, h)
         trust = np.where(better, np.minimum(1.0, trust * 1.5), trust * 0.5)
-        if np.all(trust < 1e-4):
+        # converged: the last accepted step moved less than 1e-4 sample (a change of the
+        # power far below 0.001 dB at a smooth maximum), or no step is left to try
+        if np.all((better & (moved < 1e-4)) | (trust < 1e-4)):
             break
     return bp, bu, bv
