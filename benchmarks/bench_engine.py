@@ -56,20 +56,33 @@ def main():
         power = median_time(lambda a=a, eng=eng: eng.power(a), rep)
         full = median_time(lambda a=a, eng=eng: eng.evaluate(a), rep)
         detail = median_time(lambda a=a, eng=eng: eng.detail(a), max(5, rep // 4))
-        rows.append({
-            "lattice": f"{n}x{n}", "padded": f"{pr}x{pc}",
-            "bare_rfft2_ms": bare * 1e3, "engine_transform_ms": power * 1e3,
-            "evaluate_ms": full * 1e3, "detail_ms": detail * 1e3,
-            "evaluate_over_bare": full / bare, "detail_over_bare": detail / bare,
-        })
-    print(f"machine: {platform.machine()}, {platform.processor() or 'cpu'}, "
-          f"python {platform.python_version()}, numpy {np.__version__}, scipy {scipy.__version__}")
-    print(f"{'lattice':>9} {'padded':>9} {'bare FFT':>10} {'transform':>10} {'evaluate':>10} "
-          f"{'detail':>10} {'eval/bare':>10} {'detail/bare':>12}")
+        rows.append(
+            {
+                "lattice": f"{n}x{n}",
+                "padded": f"{pr}x{pc}",
+                "bare_rfft2_ms": bare * 1e3,
+                "engine_transform_ms": power * 1e3,
+                "evaluate_ms": full * 1e3,
+                "detail_ms": detail * 1e3,
+                "evaluate_over_bare": full / bare,
+                "detail_over_bare": detail / bare,
+            }
+        )
+    print(
+        f"machine: {platform.machine()}, {platform.processor() or 'cpu'}, "
+        f"python {platform.python_version()}, numpy {np.__version__}, scipy {scipy.__version__}"
+    )
+    print(
+        f"{'lattice':>9} {'padded':>9} {'bare FFT':>10} {'transform':>10} {'evaluate':>10} "
+        f"{'detail':>10} {'eval/bare':>10} {'detail/bare':>12}"
+    )
     for r in rows:
-        print(f"{r['lattice']:>9} {r['padded']:>9} {r['bare_rfft2_ms']:>8.3f}ms "
-              f"{r['engine_transform_ms']:>8.3f}ms {r['evaluate_ms']:>8.3f}ms {r['detail_ms']:>8.3f}ms "
-              f"{r['evaluate_over_bare']:>10.2f} {r['detail_over_bare']:>12.2f}")
+        print(
+            f"{r['lattice']:>9} {r['padded']:>9} {r['bare_rfft2_ms']:>8.3f}ms "
+            f"{r['engine_transform_ms']:>8.3f}ms {r['evaluate_ms']:>8.3f}ms "
+            f"{r['detail_ms']:>8.3f}ms "
+            f"{r['evaluate_over_bare']:>10.2f} {r['detail_over_bare']:>12.2f}"
+        )
     if args.json:
         print(json.dumps(rows, indent=2))
 

@@ -24,8 +24,9 @@ def linear_csv(tmp_path):
     """A thinned half-wavelength linear array at 3 GHz (the check-contract case)."""
     lam = C_MM_GHZ / 3.0
     on = [i for i in range(64) if (i * 7) % 5 != 0]
-    return write_csv(tmp_path / "linear.csv",
-                     [(k + 1, f"{i * lam / 2:.6f}", "0") for k, i in enumerate(on)]), len(on)
+    return write_csv(
+        tmp_path / "linear.csv", [(k + 1, f"{i * lam / 2:.6f}", "0") for k, i in enumerate(on)]
+    ), len(on)
 
 
 def run(capsys, *args):
@@ -37,8 +38,9 @@ def run(capsys, *args):
 def test_score_json_contract(capsys, linear_csv):
     """Keys and types of conventions.md; directivity exactly N for q = 0 (references.md row 1)."""
     path, n = linear_csv
-    code, out, err = run(capsys, "score", str(path), "--freq-ghz", "3", "--element-exponent", "0",
-                         "--json")
+    code, out, err = run(
+        capsys, "score", str(path), "--freq-ghz", "3", "--element-exponent", "0", "--json"
+    )
     assert code == 0, err
     m = json.loads(out)
     assert m["elements"] == n
@@ -62,8 +64,12 @@ def test_score_table(capsys, linear_csv):
 def test_python_dash_m_runs(linear_csv):
     """``python -m thinning`` is the same command."""
     path, n = linear_csv
-    r = subprocess.run([sys.executable, "-m", "thinning", "score", str(path), "--freq-ghz", "3",
-                        "--json"], capture_output=True, text=True, timeout=120)
+    r = subprocess.run(
+        [sys.executable, "-m", "thinning", "score", str(path), "--freq-ghz", "3", "--json"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert r.returncode == 0, r.stderr
     assert json.loads(r.stdout)["elements"] == n
 
@@ -92,14 +98,22 @@ def test_missing_file_and_bad_options(capsys, tmp_path, linear_csv):
     code, _, err = run(capsys, "score", str(tmp_path / "nope.csv"), "--freq-ghz", "3")
     assert code == 1 and "nope.csv" in err and len(err.strip().splitlines()) == 1
     path, _ = linear_csv
-    for args in (["--freq-ghz", "-3"], ["--freq-ghz", "nan"], ["--freq-ghz", "3",
-                 "--scan-max-deg", "95"], []):
+    for args in (
+        ["--freq-ghz", "-3"],
+        ["--freq-ghz", "nan"],
+        ["--freq-ghz", "3", "--scan-max-deg", "95"],
+        [],
+    ):
         code, out, err = run(capsys, "score", str(path), *args)
         assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
 
 
 def test_subprocess_error_has_no_traceback(tmp_path):
     p = write_csv(tmp_path / "nan.csv", [(1, "0", "0"), (2, "nan", "1")])
-    r = subprocess.run([sys.executable, "-m", "thinning", "score", str(p), "--freq-ghz", "3"],
-                       capture_output=True, text=True, timeout=120)
+    r = subprocess.run(
+        [sys.executable, "-m", "thinning", "score", str(p), "--freq-ghz", "3"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert r.returncode == 1 and "Traceback" not in r.stderr and "nan.csv" in r.stderr
