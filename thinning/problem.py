@@ -1,0 +1,344 @@
+"""The thinning problem: candidate sites, an exact budget, constraints, symmetry, objective.
+
+The search methods never see sites directly. They work on a *genome*: one boolean gene per
+free symmetry orbit of sites (a single site without symmetry; a mirror pair; a group of four).
+Orbits of the same size form a *class*, and every genome has exactly ``class_ones[c]`` genes on
+in class c, which fixes the element count exactly. A count-preserving move therefore swaps an
+on gene for an off gene of the same class. Pinned orbits are always on and forbidden ones
+always off; neither is a gene.
+
+The objective (lower is better) is
+
+    J = PSL_dB + w · ASL_dB                      (objective = "psl", the default)
+    J = ASL_dB + w · PSL_dB                      (objective = "asl")
+
+with w = ``secondary_weight`` (0.05 by default): the PSL decides, and between layouts of
+nearly equal PSL the lower ASL wins.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import SpecError, where
+from .lattice import Sites
+from .pattern import FFTPatternEngine
+
+__all__ = ["SYMMETRIES", "OBJECTIVES", "ThinningProblem", "Evaluation"]
+
+SYMMETRIES = ("none", "mirror-x", "mirror-y", "mirror-xy", "rotate-180")
+OBJECTIVES = ("psl", "asl")
+#: Patterns per FFT batch. Fixed, so that a population is cut into the same batches whatever
+#: the number of worker processes, and the results are bit-identical for any ``--workers``.
+BATCH = 16
+
+
+@dataclass
+class Evaluation:
+    """Figures of a batch of genomes.
+
+    Attributes
+    ----------
+    objective : (B,) array  [dB]   J, lower is better
+    psl_db, asl_db : (B,) arrays  [dB]
+    """
+
+    objective: np.ndarray
+    psl_db: np.ndarray
+    asl_db: np.ndarray
+
+
+def _orbit_partners(sites: Sites, symmetry: str) -> list[np.ndarray]:
+    """For each symmetry operation, the site index of each site's image (−1 where none)."""
+    col, row = sites.col, sites.row
+    c_sum = int(col.min() + col.max())
+    r_sum = int(row.min() + row.max())
+    lookup = {(int(c), int(r)): i for i, (c, r) in enumerate(zip(col, row, strict=True))}
+
+    def image(cc, rr):
+        return np.array([lookup.get((int(c), int(r)), -1) for c, r in zip(cc, rr, strict=True)])
+
+    ops = {
+        "none": [],
+        "mirror-x": [(c_sum - col, row)],
+        "mirror-y": [(col, r_sum - row)],
+        "mirror-xy": [(c_sum - col, row), (col, r_sum - row), (c_sum - col, r_sum - row)],
+        "rotate-180": [(c_sum - col, r_sum - row)],
+    }[symmetry]
+    return [image(c, r) for c, r in ops]
+
+
+def outer_ring(sites: Sites) -> np.ndarray:
+    """Sites on the edge of the aperture: those missing a lattice neighbour (bool mask).
+
+    Neighbours are the 4 nearest of a rectangular lattice, the 6 of a triangular one, the 2 of
+    a linear one.
+    """
+    kind = sites.lattice.kind
+    if kind == "triangular":
+        steps = [(2, 0), (-2, 0), (1, 1), (-1, 1), (1, -1), (-1, -1)]
+    elif kind == "linear":
+        steps = [(1, 0), (-1, 0)]
+    else:
+        steps = [(1, 0), (-1, 0), (0, 1), (0, -1)]
+    present = set(zip(sites.col.tolist(), sites.row.tolist(), strict=True))
+    edge = np.zeros(len(sites), dtype=bool)
+    for dc, dr in steps:
+        edge |= np.array(
+            [
+                (c + dc, r + dr) not in present
+                for c, r in zip(sites.col.tolist(), sites.row.tolist(), strict=True)
+            ]
+        )
+    return edge
+
+
+@dataclass
+class ThinningProblem:
+    """Choose exactly ``elements`` of the candidate ``sites``.
+
+    Parameters
+    ----------
+    sites : Sites
+    elements : int
+        Exact number of active elements N.
+    wavelength : float  [m]
+    scan_max : float  [rad]
+    pinned, forbidden : (M,) bool arrays, optional
+    symmetry : str   one of :data:`SYMMETRIES`
+    objective : str   one of :data:`OBJECTIVES`
+    secondary_weight : float  [1]
+    oversampling : float
+    source : str, optional   spec file name, for messages
+    """
+
+    sites: Sites
+    elements: int
+    wavelength: float
+    scan_max: float = 0.0
+    pinned: np.ndarray | None = None
+    forbidden: np.ndarray | None = None
+    symmetry: str = "none"
+    objective: str = "psl"
+    secondary_weight: float = 0.05
+    oversampling: float = 4.0
+    source: str | None = None
+    notes: list = field(default_factory=list)
+
+    def __post_init__(self):
+        m = len(self.sites)
+        src = self.source
+        if self.symmetry not in SYMMETRIES:
+            raise SpecError(
+                f"{where(src, 'constraints.symmetry')}{self.symmetry!r}: "
+                f"expected one of {', '.join(SYMMETRIES)}"
+            )
+        if self.objective not in OBJECTIVES:
+            raise SpecError(
+                f"{where(src, 'search.objective')}{self.objective!r}: "
+                f"expected one of {', '.join(OBJECTIVES)}"
+            )
+        n = int(self.elements)
+        if n < 2:
+            raise SpecError(
+                f"{where(src, 'budget.elements')}{n}: at least 2 elements are needed "
+                "to have sidelobes"
+            )
+        if n > m:
+            raise SpecError(
+                f"{where(src, 'budget.elements')}{n}: more than the {m} sites the aperture holds"
+            )
+        pinned = np.zeros(m, bool) if self.pinned is None else np.asarray(self.pinned, bool)
+        forbidden = (
+            np.zeros(m, bool) if self.forbidden is None else np.asarray(self.forbidden, bool)
+        )
+        # orbits: union of each site with its images
+        partners = _orbit_partners(self.sites, self.symmetry)
+        orbit = np.arange(m)
+        incomplete = np.zeros(m, dtype=bool)
+        for img in partners:
+            incomplete |= img < 0
+            ok = img >= 0
+            orbit[ok] = np.minimum(orbit[ok], img[ok])
+        for _ in range(3):  # settle chains (at most 4 members)
+            orbit = orbit[orbit]
+            for img in partners:
+                ok = img >= 0
+                orbit[ok] = np.minimum(orbit[ok], orbit[img[ok]])
+        _, orbit_id, sizes = np.unique(orbit, return_inverse=True, return_counts=True)
+        # an orbit is pinned/forbidden if any member is; incomplete orbits stay off
+        n_orb = sizes.size
+        o_pin = np.bincount(orbit_id, weights=pinned, minlength=n_orb) > 0
+        o_forb = np.bincount(orbit_id, weights=forbidden, minlength=n_orb) > 0
+        o_incomplete = np.bincount(orbit_id, weights=incomplete, minlength=n_orb) > 0
+        clash = o_pin & (o_forb | o_incomplete)
+        if clash.any():
+            i = int(np.flatnonzero(clash[orbit_id])[0])
+            why = "forbidden" if o_forb[orbit_id[i]] else f"without a {self.symmetry} partner"
+            raise SpecError(f"{where(src, 'constraints')}site {i + 1} is pinned but {why}")
+        if self.symmetry != "none" and o_incomplete.any():
+            k = int(incomplete.sum())
+            self.notes.append(f"{k} of {m} sites have no {self.symmetry} partner and stay off")
+        o_off = o_forb | o_incomplete
+        self.site_orbit = orbit_id
+        self.orbit_size = sizes
+        self.pinned_sites = o_pin[orbit_id]
+        self.available_sites = ~o_off[orbit_id]
+        n_pinned = int(self.pinned_sites.sum())
+        free_orbits = np.flatnonzero(~o_pin & ~o_off)
+        need = n - n_pinned
+        if need < 0:
+            raise SpecError(
+                f"{where(src, 'budget.elements')}{n}: fewer than the {n_pinned} pinned sites"
+            )
+        # genes: free orbits, grouped into classes by orbit size
+        self.gene_orbit = free_orbits
+        gsize = sizes[free_orbits]
+        self.class_sizes = np.unique(gsize)
+        self.gene_class = np.searchsorted(self.class_sizes, gsize)
+        avail = np.bincount(self.gene_class, minlength=self.class_sizes.size)
+        self.class_ones = _composition(need, self.class_sizes, avail, n, src, self.symmetry)
+        gene_of_orbit = np.full(n_orb, -1)
+        gene_of_orbit[free_orbits] = np.arange(free_orbits.size)
+        self.site_gene = gene_of_orbit[orbit_id]
+        self.engine = FFTPatternEngine(
+            self.sites.grid_shape,
+            self.sites.lattice.grid_pitch,
+            self.wavelength,
+            self.scan_max,
+            self.oversampling,
+            linear=self.sites.lattice.kind == "linear",
+        )
+
+    # -- genomes ----------------------------------------------------------------------------
+    @property
+    def n_genes(self) -> int:
+        return int(self.gene_orbit.size)
+
+    @property
+    def fill(self) -> float:
+        return self.elements / len(self.sites)
+
+    def is_feasible(self, genome) -> bool:
+        """Exactly ``class_ones[c]`` genes on in every class."""
+        g = np.asarray(genome, bool)
+        return bool(
+            np.array_equal(
+                np.bincount(self.gene_class[g], minlength=self.class_sizes.size), self.class_ones
+            )
+        )
+
+    def random_genomes(self, rng: np.random.Generator, k: int, weights=None) -> np.ndarray:
+        """k genomes with the exact count in every class, genes drawn uniformly (or, with
+        ``weights`` per gene, drawn without replacement in proportion to them)."""
+        out = np.zeros((k, self.n_genes), dtype=bool)
+        for c, ones in enumerate(self.class_ones):
+            idx = np.flatnonzero(self.gene_class == c)
+            if ones == 0:
+                continue
+            if weights is None:
+                keys = rng.random((k, idx.size))
+            else:  # Efraimidis–Spirakis weighted sampling without replacement
+                w = np.maximum(np.asarray(weights, float)[idx], 1e-300)
+                keys = np.log(rng.random((k, idx.size))) / w
+            top = np.argpartition(-keys, ones - 1, axis=1)[:, :ones]
+            rows = np.repeat(np.arange(k), ones)
+            out[rows, idx[top.ravel()]] = True
+        return out
+
+    def to_masks(self, genomes) -> np.ndarray:
+        """Site masks (B, M) of genomes (B, G)."""
+        g = np.atleast_2d(np.asarray(genomes, bool))
+        on = np.zeros((g.shape[0], len(self.sites)), dtype=bool)
+        free = self.site_gene >= 0
+        on[:, free] = g[:, self.site_gene[free]]
+        on |= self.pinned_sites
+        return on
+
+    def genome_of_mask(self, mask) -> np.ndarray:
+        """The genome of a site mask (the inverse of :meth:`to_masks` for feasible masks)."""
+        mask = np.asarray(mask, bool)
+        g = np.zeros(self.n_genes, dtype=bool)
+        free = self.site_gene >= 0
+        g[self.site_gene[free]] = mask[free]
+        return g
+
+    def gene_positions(self) -> np.ndarray:
+        """Mean (x, y) position of each gene's sites  [m] (for tapers)."""
+        free = self.site_gene >= 0
+        x = np.bincount(self.site_gene[free], weights=self.sites.x[free], minlength=self.n_genes)
+        y = np.bincount(self.site_gene[free], weights=self.sites.y[free], minlength=self.n_genes)
+        cnt = np.bincount(self.site_gene[free], minlength=self.n_genes)
+        return np.column_stack([x / cnt, y / cnt])
+
+    # -- evaluation -------------------------------------------------------------------------
+    def evaluate(self, genomes) -> Evaluation:
+        """Objective, PSL and ASL of genomes (B, G), in fixed batches of :data:`BATCH`."""
+        masks = self.to_masks(genomes)
+        psl = np.empty(masks.shape[0])
+        asl = np.empty(masks.shape[0])
+        for s in range(0, masks.shape[0], BATCH):
+            grids = self.sites.to_grid(masks[s : s + BATCH].astype(np.float32))
+            sc = self.engine.evaluate(grids)
+            psl[s : s + BATCH] = sc.psl_db
+            asl[s : s + BATCH] = sc.asl_db
+        return Evaluation(self.combine(psl, asl), psl, asl)
+
+    def combine(self, psl_db, asl_db) -> np.ndarray:
+        """The objective J from PSL and ASL  [dB]."""
+        w = self.secondary_weight
+        if self.objective == "asl":
+            return np.asarray(asl_db) + w * np.asarray(psl_db)
+        return np.asarray(psl_db) + w * np.asarray(asl_db)
+
+
+def _composition(need, sizes, avail, n, src, symmetry) -> np.ndarray:
+    """How many orbits of each size to switch on: Σ sizeₖ·onesₖ = need, 0 ≤ onesₖ ≤ availₖ,
+    as close as possible to the same fill in every class."""
+    sizes = [int(s) for s in sizes]
+    avail = [int(a) for a in avail]
+    total = sum(s * a for s, a in zip(sizes, avail, strict=True))
+    if need > total:
+        raise SpecError(
+            f"{where(src, 'budget.elements')}{n}: more than the sites available "
+            f"({total} free after constraints)"
+        )
+    if not sizes:
+        return np.zeros(0, dtype=np.int64)
+    f = need / total if total else 0.0
+    best, best_err = None, math.inf
+    # search the larger classes near their proportional share; the size-1 (or smallest) class
+    # takes the remainder
+    (*big,) = range(1, len(sizes))
+    ranges = []
+    for k in big:
+        centre = f * avail[k]
+        lo = max(0, int(math.floor(centre)) - 3)
+        hi = min(avail[k], int(math.ceil(centre)) + 3)
+        ranges.append(range(lo, hi + 1) if lo <= hi else range(0))
+    import itertools
+
+    for combo in itertools.product(*ranges) if ranges else [()]:
+        rest = need - sum(sizes[k] * c for k, c in zip(big, combo, strict=True))
+        if rest < 0 or rest % sizes[0] or rest // sizes[0] > avail[0]:
+            continue
+        ones = [rest // sizes[0], *combo]
+        err = sum((o - f * a) ** 2 for o, a in zip(ones, avail, strict=True))
+        if err < best_err:
+            best, best_err = ones, err
+    if best is None:
+        for combo in itertools.product(*[range(avail[k] + 1) for k in big]):
+            rest = need - sum(sizes[k] * c for k, c in zip(big, combo, strict=True))
+            if 0 <= rest and rest % sizes[0] == 0 and rest // sizes[0] <= avail[0]:
+                best = [rest // sizes[0], *combo]
+                break
+    if best is None:
+        raise SpecError(
+            f"{where(src, 'budget.elements')}{n}: cannot be met exactly with symmetry "
+            f"{symmetry!r} (symmetric groups of {', '.join(map(str, sizes))} sites); "
+            "choose a budget that fits or another symmetry"
+        )
+    return np.array(best, dtype=np.int64)

@@ -1,0 +1,261 @@
+"""Search methods over the occupancy of the lattice, and what they share.
+
+Every method is a module with a function
+
+    run(problem: ThinningProblem, tracker: Tracker, rng: numpy.random.Generator,
+        options: dict) -> str
+
+that evaluates genomes only through ``tracker.evaluate`` (which counts them, keeps the best
+so far, records the convergence history, reports progress and enforces the limits) and
+returns why it stopped. Because the tracker always holds the best layout seen, a run cut
+short by the time limit or by Ctrl-C still has a result.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import time
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..problem import BATCH, Evaluation, ThinningProblem
+
+__all__ = ["METHODS", "SearchResult", "Tracker", "run_method", "method_module"]
+
+METHODS = ("random", "density", "genetic")
+
+# -- worker processes ------------------------------------------------------------------------
+_WORKER_PROBLEM: ThinningProblem | None = None
+
+
+def _init_worker(problem):
+    global _WORKER_PROBLEM
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C
+    _WORKER_PROBLEM = problem
+
+
+def _evaluate_batch(genomes):
+    ev = _WORKER_PROBLEM.evaluate(genomes)
+    return ev.psl_db, ev.asl_db
+
+
+@dataclass
+class SearchResult:
+    """What a search run found.
+
+    Attributes
+    ----------
+    genome : (G,) bool array   the best genome
+    mask : (M,) bool array     its site mask
+    objective, psl_db, asl_db : float  [dB]   its figures as the search saw them
+    evaluations : int
+    runtime_s : float  [s]
+    stopped_by : str
+    history : list of dict   evaluations, seconds, best objective/PSL/ASL at each improvement
+                             and at the end of every generation or round
+    """
+
+    genome: np.ndarray
+    mask: np.ndarray
+    objective: float
+    psl_db: float
+    asl_db: float
+    evaluations: int
+    runtime_s: float
+    stopped_by: str
+    history: list = field(default_factory=list)
+
+
+class Tracker:
+    """Counts evaluations, keeps the best genome, enforces limits, reports progress.
+
+    Parameters
+    ----------
+    problem : ThinningProblem
+    max_evaluations : int or None
+    time_limit_s : float or None  [s]
+    workers : int   processes for evaluation (1 = in this process)
+    progress : callable(dict) or None   called at most every ``progress_every_s`` seconds
+    """
+
+    def __init__(
+        self,
+        problem,
+        max_evaluations=None,
+        time_limit_s=None,
+        workers=1,
+        progress=None,
+        progress_every_s=0.5,
+    ):
+        self.problem = problem
+        self.max_evaluations = max_evaluations
+        self.time_limit_s = time_limit_s
+        self.workers = max(1, int(workers))
+        self.progress = progress
+        self.progress_every_s = progress_every_s
+        self.evaluations = 0
+        self.best_genome = None
+        self.best = (np.inf, np.nan, np.nan)  # objective, psl, asl
+        self.history: list[dict] = []
+        self.start = time.perf_counter()
+        self._last_report = -np.inf
+        self._pool = None
+        if self.workers > 1:
+            self._pool = ProcessPoolExecutor(
+                self.workers, initializer=_init_worker, initargs=(problem,)
+            )
+
+    # -- lifecycle ------------------------------------------------------------------------
+    def close(self):
+        if self._pool is not None:
+            self._pool.shutdown(wait=False, cancel_futures=True)
+            self._pool = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    # -- limits ---------------------------------------------------------------------------
+    @property
+    def elapsed(self) -> float:
+        return time.perf_counter() - self.start
+
+    @property
+    def remaining(self) -> float:
+        """Evaluations left before the evaluation limit (inf without one)."""
+        if self.max_evaluations is None:
+            return np.inf
+        return max(0, self.max_evaluations - self.evaluations)
+
+    def stop_reason(self) -> str | None:
+        """Why the search must stop now, or None."""
+        if self.max_evaluations is not None and self.evaluations >= self.max_evaluations:
+            return "evaluations"
+        if self.time_limit_s is not None and self.elapsed >= self.time_limit_s:
+            return "time"
+        return None
+
+    def should_stop(self) -> bool:
+        return self.stop_reason() is not None
+
+    # -- evaluation -----------------------------------------------------------------------
+    def evaluate(self, genomes) -> Evaluation:
+        """Evaluate genomes (B, G); counts them and keeps the best."""
+        g = np.atleast_2d(np.asarray(genomes, dtype=bool))
+        if self._pool is not None and g.shape[0] > BATCH:
+            chunks = [g[s : s + BATCH] for s in range(0, g.shape[0], BATCH)]
+            parts = list(self._pool.map(_evaluate_batch, chunks))
+            psl = np.concatenate([p for p, _ in parts])
+            asl = np.concatenate([a for _, a in parts])
+            ev = Evaluation(self.problem.combine(psl, asl), psl, asl)
+        else:
+            ev = self.problem.evaluate(g)
+        self.evaluations += g.shape[0]
+        i = int(np.argmin(ev.objective))
+        if ev.objective[i] < self.best[0]:
+            self.best = (float(ev.objective[i]), float(ev.psl_db[i]), float(ev.asl_db[i]))
+            self.best_genome = g[i].copy()
+            self.record()
+        self._maybe_report()
+        return ev
+
+    def record(self, **extra):
+        """Add a point to the convergence history."""
+        self.history.append(
+            {
+                "evaluations": self.evaluations,
+                "seconds": round(self.elapsed, 4),
+                "best_objective": self.best[0],
+                "best_psl_db": self.best[1],
+                "best_asl_db": self.best[2],
+                **extra,
+            }
+        )
+
+    def _maybe_report(self, force=False):
+        if self.progress is None:
+            return
+        now = self.elapsed
+        if not force and now - self._last_report < self.progress_every_s:
+            return
+        self._last_report = now
+        rate = self.evaluations / now if now > 0 else 0.0
+        left = None
+        if self.time_limit_s is not None:
+            left = max(0.0, self.time_limit_s - now)
+        if self.max_evaluations is not None and rate > 0:
+            by_evals = self.remaining / rate
+            left = by_evals if left is None else min(left, by_evals)
+        self.progress(
+            {
+                "evaluations": self.evaluations,
+                "seconds": now,
+                "rate": rate,
+                "best_psl_db": self.best[1],
+                "best_asl_db": self.best[2],
+                "seconds_left": left,
+            }
+        )
+
+    def result(self, stopped_by: str) -> SearchResult:
+        self._maybe_report(force=True)
+        if self.best_genome is None:
+            raise RuntimeError("the search stopped before evaluating any layout")
+        return SearchResult(
+            genome=self.best_genome.copy(),
+            mask=self.problem.to_masks(self.best_genome)[0],
+            objective=self.best[0],
+            psl_db=self.best[1],
+            asl_db=self.best[2],
+            evaluations=self.evaluations,
+            runtime_s=self.elapsed,
+            stopped_by=stopped_by,
+            history=list(self.history),
+        )
+
+
+def method_module(name: str):
+    """The module implementing search method ``name``."""
+    import importlib
+
+    if name not in METHODS:
+        raise ValueError(f"unknown search method {name!r}")
+    return importlib.import_module(f"{__name__}.{name}")
+
+
+def run_method(
+    problem,
+    method,
+    seed,
+    options=None,
+    max_evaluations=None,
+    time_limit_s=None,
+    workers=1,
+    progress=None,
+) -> SearchResult:
+    """Run one search method to its end, a limit, or Ctrl-C; always returns the best found.
+
+    Ctrl-C (KeyboardInterrupt) ends the run cleanly with ``stopped_by = "interrupt"``, as
+    long as at least one layout was evaluated.
+    """
+    rng = np.random.default_rng(seed)
+    mod = method_module(method)
+    with Tracker(problem, max_evaluations, time_limit_s, workers, progress) as tracker:
+        try:
+            stopped = mod.run(problem, tracker, rng, dict(options or {}))
+        except KeyboardInterrupt:
+            if tracker.best_genome is None:
+                raise
+            tracker.progress = None  # a second interrupt must not cut the result short
+            stopped = "interrupt"
+        tracker.record(final=True)
+        return tracker.result(stopped or tracker.stop_reason() or "done")
+
+
+def cpu_count() -> int:
+    return len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()

@@ -1,0 +1,440 @@
+"""Design specifications (TOML): read, validate, and turn into a problem.
+
+A spec names the frequency, the lattice, the panel, the budget, the scan cone and the search
+(conventions.md, "Spec TOML"; more keys are accepted, listed in :data:`KEYS`). Every problem is
+reported in one line naming the file, the key and the value. Units are those of the file
+(mm, GHz, degrees, dB) and are converted to SI here, nowhere else.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .aperture import Aperture
+from .errors import SpecError, where
+from .lattice import LATTICE_KINDS, Lattice, Sites, grating_lobe_positions
+from .problem import OBJECTIVES, SYMMETRIES, ThinningProblem, outer_ring
+from .search import METHODS
+from .units import deg_to_rad, ghz_to_hz, wavelength
+
+__all__ = ["Spec", "load_spec", "parse_spec", "KEYS", "EFFORT_EVALUATIONS"]
+
+#: Evaluations a search may spend at each effort level.
+EFFORT_EVALUATIONS = {"quick": 2_000, "normal": 20_000, "thorough": 200_000}
+
+#: Options of the search methods that a spec may set in [search].
+METHOD_OPTIONS = {
+    "draws",
+    "batch",
+    "taper",
+    "taper_sll_db",
+    "taper_nbar",
+    "population",
+    "generations",
+    "stall_generations",
+    "tournament",
+    "elite",
+    "crossover_rate",
+    "mutation_rate",
+    "mutation_swaps",
+    "seed_density_fraction",
+    "local_swaps",
+    "local_every",
+}
+
+KEYS = {
+    "array": {"frequency_ghz", "lattice", "spacing_mm", "origin_mm", "element_exponent"},
+    "aperture": {"outline_mm", "holes_mm", "edge_clearance_mm", "sites"},
+    "budget": {"elements", "fill"},
+    "scan": {"max_deg"},
+    "search": {
+        "method",
+        "seed",
+        "effort",
+        "evaluations",
+        "time_limit_s",
+        "objective",
+        "secondary_weight",
+        "oversampling",
+        "workers",
+    }
+    | METHOD_OPTIONS,
+    "constraints": {"symmetry", "pin_outer_ring", "pin_ids", "forbid_ids", "pin_mm", "forbid_mm"},
+    "requirements": {"psl_db", "asl_db"},
+    "output": {"footprint_mm", "labels"},
+    "name": None,
+    "description": None,
+}
+
+
+@dataclass
+class Spec:
+    """A validated design specification (SI inside).
+
+    Attributes
+    ----------
+    source : str   file name for messages
+    raw : dict     the TOML as read (for provenance)
+    digest : str   SHA-256 of the file's bytes
+    frequency : float  [Hz]
+    lattice : Lattice
+    aperture : Aperture or None (linear arrays)
+    linear_sites : int or None
+    elements : int
+    scan_max : float  [rad]
+    element_exponent : float
+    method, seed, objective, ... : search settings
+    """
+
+    source: str
+    raw: dict
+    digest: str
+    frequency: float
+    lattice: Lattice
+    aperture: Aperture | None
+    linear_sites: int | None
+    budget_elements: int | None
+    budget_fill: float | None
+    scan_max: float
+    element_exponent: float
+    method: str
+    seed: int
+    max_evaluations: int
+    time_limit_s: float | None
+    objective: str
+    secondary_weight: float
+    oversampling: float
+    workers: int
+    options: dict
+    symmetry: str
+    pin_outer_ring: bool
+    pin_ids: list
+    forbid_ids: list
+    pin_mm: list
+    forbid_mm: list
+    requirements: dict
+    output: dict
+    warnings: list = field(default_factory=list)
+
+    @property
+    def wavelength(self) -> float:
+        return wavelength(self.frequency)
+
+    def sites(self) -> Sites:
+        """The candidate sites of the panel (or of the linear array)."""
+        if self.lattice.kind == "linear":
+            return self.lattice.linear_sites(self.linear_sites, self.source)
+        return self.lattice.sites_in(self.aperture, self.source)
+
+    def elements(self, m: int) -> int:
+        """The exact element count for M sites (from ``elements`` or ``fill``)."""
+        if self.budget_elements is not None:
+            return self.budget_elements
+        return int(round(self.budget_fill * m))
+
+    def problem(self, sites: Sites | None = None) -> ThinningProblem:
+        """The thinning problem the spec describes."""
+        sites = self.sites() if sites is None else sites
+        m = len(sites)
+        n = self.elements(m)
+        src = self.source
+        if n > m:
+            raise SpecError(
+                f"{where(src, 'budget.elements')}{n}: more than the {m} sites the aperture holds"
+            )
+        pinned = np.zeros(m, bool)
+        forbidden = np.zeros(m, bool)
+        if self.pin_outer_ring:
+            pinned |= outer_ring(sites)
+        for key, ids, mask in (
+            ("constraints.pin_ids", self.pin_ids, pinned),
+            ("constraints.forbid_ids", self.forbid_ids, forbidden),
+        ):
+            for i in ids:
+                if not 1 <= i <= m:
+                    raise SpecError(f"{where(src, key)}{i}: site ids run from 1 to {m}")
+                mask[i - 1] = True
+        pitch = min(p for p in sites.lattice.grid_pitch if p > 0)
+        for key, pts, mask in (
+            ("constraints.pin_mm", self.pin_mm, pinned),
+            ("constraints.forbid_mm", self.forbid_mm, forbidden),
+        ):
+            for x, y in pts:
+                d = np.hypot(sites.x - x * 1e-3, sites.y - y * 1e-3)
+                i = int(np.argmin(d))
+                if d[i] > 0.5 * pitch:
+                    raise SpecError(
+                        f"{where(src, key)}[{x}, {y}]: no site within half a pitch "
+                        f"(nearest is {d[i] * 1e3:.3f} mm away)"
+                    )
+                mask[i] = True
+        both = pinned & forbidden
+        if both.any():
+            raise SpecError(
+                f"{where(src, 'constraints')}site {int(np.flatnonzero(both)[0]) + 1} "
+                "is both pinned and forbidden"
+            )
+        return ThinningProblem(
+            sites,
+            n,
+            self.wavelength,
+            self.scan_max,
+            pinned=pinned,
+            forbidden=forbidden,
+            symmetry=self.symmetry,
+            objective=self.objective,
+            secondary_weight=self.secondary_weight,
+            oversampling=self.oversampling,
+            source=src,
+        )
+
+
+def load_spec(path) -> Spec:
+    """Read and validate a spec file."""
+    p = Path(path)
+    name = str(path)
+    try:
+        data = p.read_bytes()
+    except FileNotFoundError:
+        raise SpecError(f"{name}: no such file") from None
+    except IsADirectoryError:
+        raise SpecError(f"{name}: is a directory, not a spec file") from None
+    except OSError as exc:
+        raise SpecError(f"{name}: cannot read: {exc.strerror}") from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError:
+        raise SpecError(f"{name}: not UTF-8 text") from None
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SpecError(f"{name}: not valid TOML: {exc}") from None
+    return parse_spec(raw, name, hashlib.sha256(data).hexdigest())
+
+
+def _get(raw, table, key, src, default=None, required=False):
+    t = raw.get(table, {})
+    if key not in t:
+        if required:
+            raise SpecError(f"{where(src, f'{table}.{key}')}missing (required)")
+        return default
+    return t[key]
+
+
+def _number(value, src, key, lo=None, hi=None, lo_open=False, integer=False):
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise SpecError(f"{where(src, key)}{value!r} is not a number")
+    v = float(value)
+    if not math.isfinite(v):
+        raise SpecError(f"{where(src, key)}{value!r} is not finite")
+    if integer and (not isinstance(value, int) or isinstance(value, bool)):
+        if not v.is_integer():
+            raise SpecError(f"{where(src, key)}{value!r} is not a whole number")
+    if lo is not None and (v < lo or (lo_open and v == lo)):
+        raise SpecError(f"{where(src, key)}{value!r} must be {'>' if lo_open else '>='} {lo:g}")
+    if hi is not None and v > hi:
+        raise SpecError(f"{where(src, key)}{value!r} must be <= {hi:g}")
+    return int(v) if integer else v
+
+
+def _choice(value, choices, src, key):
+    if not isinstance(value, str) or value not in choices:
+        raise SpecError(f"{where(src, key)}{value!r}: expected one of {', '.join(choices)}")
+    return value
+
+
+def _points(value, src, key):
+    if not isinstance(value, list) or not all(isinstance(p, list) and len(p) == 2 for p in value):
+        raise SpecError(f"{where(src, key)}expected a list of [x, y] pairs in mm")
+    return [(_number(x, src, key), _number(y, src, key)) for x, y in value]
+
+
+def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
+    """Validate a parsed TOML document."""
+    src = source
+    for table, value in raw.items():
+        if table not in KEYS:
+            raise SpecError(
+                f"{where(src, table)}unknown section (expected "
+                f"{', '.join(k for k in KEYS if KEYS[k] is not None)})"
+            )
+        if KEYS[table] is None:
+            continue
+        if not isinstance(value, dict):
+            raise SpecError(f"{where(src, table)}must be a table [{table}]")
+        for key in value:
+            if key not in KEYS[table]:
+                raise SpecError(
+                    f"{where(src, f'{table}.{key}')}unknown key (known: "
+                    f"{', '.join(sorted(KEYS[table]))})"
+                )
+    warnings: list[str] = []
+    for table in ("array", "budget"):
+        if table not in raw:
+            raise SpecError(f"{where(src, table)}missing section [{table}]")
+    freq_ghz = _number(
+        _get(raw, "array", "frequency_ghz", src, required=True),
+        src,
+        "array.frequency_ghz",
+        lo=0,
+        lo_open=True,
+    )
+    kind = _choice(
+        _get(raw, "array", "lattice", src, required=True), LATTICE_KINDS, src, "array.lattice"
+    )
+    spacing = _get(raw, "array", "spacing_mm", src, required=True)
+    if kind == "triangular" and isinstance(spacing, int | float) and not isinstance(spacing, bool):
+        spacing = [spacing, spacing * math.sqrt(3) / 2]  # equilateral
+    if kind == "linear" and isinstance(spacing, list) and len(spacing) == 1:
+        spacing = spacing[0]
+    origin = _get(raw, "array", "origin_mm", src, default=[0.0, 0.0])
+    lattice = Lattice.from_mm(kind, spacing, origin, src)
+    q = _number(
+        _get(raw, "array", "element_exponent", src, default=1.0),
+        src,
+        "array.element_exponent",
+        lo=0,
+        hi=20,
+    )
+    scan_deg = _number(
+        _get(raw, "scan", "max_deg", src, default=0.0), src, "scan.max_deg", lo=0, hi=89.9
+    )
+
+    aperture, n_sites = None, None
+    if kind == "linear":
+        n_sites = _get(raw, "aperture", "sites", src, required=True)
+        n_sites = _number(n_sites, src, "aperture.sites", lo=2, integer=True)
+    else:
+        outline = _get(raw, "aperture", "outline_mm", src, required=True)
+        holes = _get(raw, "aperture", "holes_mm", src, default=[])
+        clearance = _get(raw, "aperture", "edge_clearance_mm", src, default=0.0)
+        aperture = Aperture.from_mm(outline, holes, clearance, src)
+
+    elements = _get(raw, "budget", "elements", src)
+    fill = _get(raw, "budget", "fill", src)
+    if (elements is None) == (fill is None):
+        raise SpecError(
+            f"{where(src, 'budget')}give exactly one of elements (a count) or fill "
+            "(a fraction of the sites)"
+        )
+    if elements is not None:
+        elements = _number(elements, src, "budget.elements", lo=2, integer=True)
+    if fill is not None:
+        fill = _number(fill, src, "budget.fill", lo=0, hi=1, lo_open=True)
+
+    method = _choice(
+        _get(raw, "search", "method", src, default="genetic"), METHODS, src, "search.method"
+    )
+    seed = _number(
+        _get(raw, "search", "seed", src, default=0), src, "search.seed", lo=0, integer=True
+    )
+    effort = _choice(
+        _get(raw, "search", "effort", src, default="normal"),
+        tuple(EFFORT_EVALUATIONS),
+        src,
+        "search.effort",
+    )
+    evals = _get(raw, "search", "evaluations", src)
+    max_evals = (
+        EFFORT_EVALUATIONS[effort]
+        if evals is None
+        else _number(evals, src, "search.evaluations", lo=1, integer=True)
+    )
+    tl = _get(raw, "search", "time_limit_s", src)
+    if tl is not None:
+        tl = _number(tl, src, "search.time_limit_s", lo=0, lo_open=True)
+    objective = _choice(
+        _get(raw, "search", "objective", src, default="psl"), OBJECTIVES, src, "search.objective"
+    )
+    weight = _number(
+        _get(raw, "search", "secondary_weight", src, default=0.05),
+        src,
+        "search.secondary_weight",
+        lo=0,
+        hi=1,
+    )
+    over = _number(
+        _get(raw, "search", "oversampling", src, default=4.0),
+        src,
+        "search.oversampling",
+        lo=2,
+        hi=32,
+    )
+    workers = _number(
+        _get(raw, "search", "workers", src, default=1), src, "search.workers", lo=1, integer=True
+    )
+    options = {k: v for k, v in raw.get("search", {}).items() if k in METHOD_OPTIONS}
+    for k, v in options.items():
+        if k != "taper":
+            _number(v, src, f"search.{k}", lo=0)
+
+    con = raw.get("constraints", {})
+    symmetry = _choice(con.get("symmetry", "none"), SYMMETRIES, src, "constraints.symmetry")
+    pin_outer = con.get("pin_outer_ring", False)
+    if not isinstance(pin_outer, bool):
+        raise SpecError(
+            f"{where(src, 'constraints.pin_outer_ring')}{pin_outer!r}: expected true or false"
+        )
+    ids = {}
+    for key in ("pin_ids", "forbid_ids"):
+        v = con.get(key, [])
+        if not isinstance(v, list):
+            raise SpecError(f"{where(src, f'constraints.{key}')}expected a list of site ids")
+        ids[key] = [_number(i, src, f"constraints.{key}", lo=1, integer=True) for i in v]
+    pin_mm = _points(con.get("pin_mm", []), src, "constraints.pin_mm")
+    forbid_mm = _points(con.get("forbid_mm", []), src, "constraints.forbid_mm")
+    req = {}
+    for k, v in raw.get("requirements", {}).items():
+        req[k] = _number(v, src, f"requirements.{k}", hi=0)
+    output = dict(raw.get("output", {}))
+    if "footprint_mm" in output:
+        output["footprint_mm"] = _number(
+            output["footprint_mm"], src, "output.footprint_mm", lo=0, lo_open=True
+        )
+
+    lam = wavelength(ghz_to_hz(freq_ghz))
+    scan = deg_to_rad(scan_deg)
+    glob = grating_lobe_positions(lattice.basis, lam, scan)
+    if len(glob):
+        warnings.append(
+            f"{src}: array.spacing_mm {spacing!r} lets grating lobes into the scan cone of "
+            f"{scan_deg:g} deg at {freq_ghz:g} GHz (nearest at |u, v| = "
+            f"{float(np.hypot(*glob[0])):.3f}); they count as sidelobes"
+        )
+    return Spec(
+        source=src,
+        raw=raw,
+        digest=digest,
+        frequency=ghz_to_hz(freq_ghz),
+        lattice=lattice,
+        aperture=aperture,
+        linear_sites=n_sites,
+        budget_elements=elements,
+        budget_fill=fill,
+        scan_max=scan,
+        element_exponent=q,
+        method=method,
+        seed=seed,
+        max_evaluations=max_evals,
+        time_limit_s=tl,
+        objective=objective,
+        secondary_weight=weight,
+        oversampling=over,
+        workers=workers,
+        options=options,
+        symmetry=symmetry,
+        pin_outer_ring=pin_outer,
+        pin_ids=ids["pin_ids"],
+        forbid_ids=ids["forbid_ids"],
+        pin_mm=pin_mm,
+        forbid_mm=forbid_mm,
+        requirements=req,
+        output=output,
+        warnings=warnings,
+    )
