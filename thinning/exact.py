@@ -49,7 +49,7 @@ class GridExact:
 
     Parameters
     ----------
-    grids : (B, R, C) array
+    grids : (B, R, C) array, real or complex
         Excitation of each pattern on the grid (row index along y, column along x).
     pitch : (float, float)  [m]
         Grid pitch (gx, gy).
@@ -57,7 +57,8 @@ class GridExact:
     """
 
     def __init__(self, grids, pitch, wavelength):
-        a = np.asarray(grids, dtype=np.float64)
+        a = np.asarray(grids)
+        a = a.astype(np.complex128 if np.iscomplexobj(a) else np.float64)
         if a.ndim == 2:
             a = a[None]
         self.a = a
@@ -65,7 +66,7 @@ class GridExact:
         k = 2 * math.pi / wavelength
         self.kx = k * pitch[0] * (np.arange(c) - (c - 1) / 2)  # [rad per unit u]
         self.ky = k * pitch[1] * (np.arange(r) - (r - 1) / 2)
-        self.norm = a.sum(axis=(1, 2)) ** 2
+        self.norm = np.abs(a.sum(axis=(1, 2))) ** 2
 
     def evaluate(self, u, v, which=None, derivatives=True):
         """Normalised power (and gradient, Hessian in u-v) at points (u, v).
@@ -131,10 +132,11 @@ class PointExact:
         y = np.asarray(y, dtype=float)
         self.kx = k * (x - x.mean())
         self.ky = k * (y - y.mean())
-        a = np.asarray(weights, dtype=float)
+        a = np.asarray(weights)
+        a = a.astype(np.complex128 if np.iscomplexobj(a) else np.float64)
         jx, jy = 1j * self.kx, 1j * self.ky
         self.w = np.stack([a, a * jx, a * jy, a * jx**2, a * jy**2, a * jx * jy], axis=-1)
-        self.norm = float(a.sum()) ** 2
+        self.norm = float(abs(a.sum())) ** 2
 
     def af_columns(self, u, v, columns):
         """Σ_n w[n, columns] exp(j(kx u + ky v)) at the points, in bounded-memory chunks."""
@@ -158,7 +160,8 @@ class PointExact:
         return p / self.norm, g / self.norm, h / self.norm
 
 
-def refine_peaks(exact, u, v, step, radius, which=None, linear=False, iterations=12):
+def refine_peaks(exact, u, v, step, radius, which=None, linear=False, iterations=12,
+                 centre=(0.0, 0.0)):
     """Climb from sample points to the local maxima of the exact pattern.
 
     A trust-region Newton iteration in sample-scaled coordinates, for all points at once: the
@@ -177,6 +180,8 @@ def refine_peaks(exact, u, v, step, radius, which=None, linear=False, iterations
         Sample spacing (du, dv) of the grid the points came from.
     radius : float  [1]
         Radius of the sidelobe disc.
+    centre : (float, float)  [1]
+        Centre of the sidelobe disc (off the origin for a steered beam's visible region).
     which : (m,) int array, optional
         Pattern index of each point (for a stacked :class:`GridExact`).
     linear : bool
@@ -223,9 +228,10 @@ def refine_peaks(exact, u, v, step, radius, which=None, linear=False, iterations
         su = np.clip((bu - u0) / du + d[:, 0], -1.0, 1.0)
         sv = np.clip((bv - v0) / dv + d[:, 1], -1.0, 1.0) if not linear else np.zeros_like(su)
         tu, tv = u0 + su * du, (v0 + sv * dv) if not linear else v0
-        r = np.hypot(tu, tv)
+        cu, cv = centre
+        r = np.hypot(tu - cu, tv - cv)
         shrink = np.where(r > radius, radius / np.where(r > 0, r, 1.0), 1.0)
-        tu, tv = tu * shrink, tv * shrink
+        tu, tv = cu + (tu - cu) * shrink, cv + (tv - cv) * shrink
         tp, tg, th = exact.evaluate(tu, tv, which)
         better = tp > bp
         moved = np.hypot((tu - bu) / du, (tv - bv) / dv)

@@ -95,36 +95,39 @@ class _Engine:
     linear: bool
     radius: float
 
-    def _refine(self, exact, red, flats, which):
+    def _refine(self, exact, red, flats, which, region=None):
+        region = self.region if region is None else region
         uv = np.array(
             [
-                self.region.alias_point(f, _mb_weight(red, self.region, w, f))
+                region.alias_point(f, _mb_weight(red, region, w, f))
                 for f, w in zip(flats, which, strict=True)
             ]
         ).reshape(-1, 2)
-        g = self.region.grid
+        g = region.grid
         p, u, v = refine_peaks(
             exact,
             uv[:, 0],
             uv[:, 1],
             (g.du, g.dv),
-            self.radius,
+            region.radius,
             which=np.asarray(which),
             linear=self.linear,
+            centre=region.centre,
         )
         return p, np.column_stack([u, v])
 
-    def _detail(self, exact, power1, red) -> PatternDetail:
-        weff = self.region.effective_weight(red, 0)
+    def _detail(self, exact, power1, red, region=None) -> PatternDetail:
+        region = self.region if region is None else region
+        weff = region.effective_weight(red, 0)
         norm = power1 / red.peak[0]
         margin = MARGIN_DB[1] if self.linear else MARGIN_DB[0]
-        cand = self.region.candidates(norm, weff, margin, MAX_CANDIDATES)
+        cand = region.candidates(norm, weff, margin, MAX_CANDIDATES)
         psl_s = float(red.psl[0])
         if cand.size == 0:
             return PatternDetail(
-                0.0, (math.nan, math.nan), 0.0, float(red.asl[0]), 0, norm, weff, self.region.grid
+                0.0, (math.nan, math.nan), 0.0, float(red.asl[0]), 0, norm, weff, region.grid
             )
-        p, uv = self._refine(exact, red, cand, np.zeros(cand.size, dtype=np.int64))
+        p, uv = self._refine(exact, red, cand, np.zeros(cand.size, dtype=np.int64), region)
         best = int(np.argmax(p))
         return PatternDetail(
             psl=float(max(p[best], psl_s)),
@@ -134,7 +137,7 @@ class _Engine:
             refined=int(cand.size),
             power=norm,
             sidelobe_weight=weff,
-            grid=self.region.grid,
+            grid=region.grid,
         )
 
 
@@ -169,6 +172,10 @@ class FFTPatternEngine(_Engine):
     dtype : numpy dtype
         float32 (default) or float64 for the transform and the sample figures; the refined
         PSL is always computed in float64.
+    full : bool
+        Keep the whole u-v period instead of the half plane u ≥ 0: needed for complex
+        excitations (errors, steering phases), whose pattern has no mirror symmetry, and for
+        sidelobe discs off the origin (:meth:`region_for`).
     """
 
     def __init__(
@@ -182,8 +189,10 @@ class FFTPatternEngine(_Engine):
         pad=None,
         workers=1,
         dtype=np.float32,
+        full=False,
     ):
         r, c = int(shape[0]), int(shape[1])
+        self.full = bool(full)
         self.linear = bool(linear)
         self.shape = (r, c)
         self.pitch = (float(pitch[0]), float(pitch[1]))
@@ -192,6 +201,8 @@ class FFTPatternEngine(_Engine):
         self.radius = 1.0 + math.sin(self.scan_max)
         self.workers = workers
         self.dtype = np.dtype(dtype)
+        if self.full:
+            self.dtype = np.dtype(np.complex64 if self.dtype == np.float32 else np.complex128)
         s = float(oversampling)
         if pad is not None:
             pr, pc = int(pad[0]), int(pad[1])
@@ -206,14 +217,29 @@ class FFTPatternEngine(_Engine):
         tv = None if self.linear else self.wavelength / gy
         grid = SampleGrid(
             nr=pr,
-            nc=pc // 2 + 1,
+            nc=pc if self.full else pc // 2 + 1,
             du=tu / pc,
             dv=0.0 if self.linear else tv / pr,
             period=(tu, tv),
             n_full_cols=pc,
+            full=self.full,
         )
         # main-beam window in samples: the oversampling actually achieved on the finer axis
-        self.region = SampledRegion(grid, self.radius, max(pc / c, 1.0 if self.linear else pr / r))
+        self.window_oversampling = max(pc / c, 1.0 if self.linear else pr / r)
+        self.region = SampledRegion(grid, self.radius, self.window_oversampling)
+        self._regions = {}
+
+    def region_for(self, radius: float, centre=(0.0, 0.0)) -> SampledRegion:
+        """A sidelobe disc of another radius or centre on this engine's grid (cached).
+
+        A beam steered to (u₀, v₀) sees the visible region |(u, v)| ≤ 1 as the disc of
+        radius 1 centred at (−u₀, −v₀) in the coordinates of the unsteered array factor.
+        """
+        key = (float(radius), float(centre[0]), float(centre[1]))
+        if key not in self._regions:
+            self._regions[key] = SampledRegion(self.grid, radius, self.window_oversampling,
+                                               centre)
+        return self._regions[key]
 
     @property
     def grid(self) -> SampleGrid:
@@ -235,7 +261,10 @@ class FFTPatternEngine(_Engine):
         """|AF|² samples of a stack of excitation grids, shape (B, nr·nc), peak at sample 0."""
         a = self._as_stack(grids)
         pr, pc = self.pad
-        f = scipy.fft.rfft(a, n=pc, axis=-1, workers=self.workers)
+        if self.full:
+            f = scipy.fft.fft(a, n=pc, axis=-1, workers=self.workers)
+        else:
+            f = scipy.fft.rfft(a, n=pc, axis=-1, workers=self.workers)
         if pr > 1:
             f = scipy.fft.fft(f, n=pr, axis=-2, workers=self.workers)
         p = f.real * f.real
@@ -247,32 +276,34 @@ class FFTPatternEngine(_Engine):
         pitch = (self.pitch[0], 0.0 if self.linear else self.pitch[1])
         return GridExact(a, pitch, self.wavelength)
 
-    def evaluate(self, grids, refine=True) -> Scores:
+    def evaluate(self, grids, refine=True, region=None) -> Scores:
         """PSL and ASL of a stack of excitation grids (the search's call).
 
         The PSL is refined on the exact pattern around each pattern's highest sample; use
         :meth:`detail` for the full candidate search of a reported figure.
         """
+        region = self.region if region is None else region
         a = self._as_stack(grids)
-        red = self.region.reduce(self.power(a))
+        red = region.reduce(self.power(a))
         b = a.shape[0]
         if not refine:
             uv = np.array(
                 [
-                    self.region.alias_point(f, _mb_weight(red, self.region, i, f))
+                    region.alias_point(f, _mb_weight(red, region, i, f))
                     for i, f in enumerate(red.argmax)
                 ]
             ).reshape(-1, 2)
             return Scores(red.psl.copy(), red.asl.copy(), uv)
-        p, uv = self._refine(self.exact(a), red, red.argmax, np.arange(b))
+        p, uv = self._refine(self.exact(a), red, red.argmax, np.arange(b), region)
         return Scores(np.maximum(p, red.psl), red.asl.copy(), uv)
 
-    def detail(self, grid) -> PatternDetail:
+    def detail(self, grid, region=None) -> PatternDetail:
         """Detailed evaluation of one excitation grid: every candidate lobe refined."""
+        region = self.region if region is None else region
         a = self._as_stack(grid)[:1]
         power = self.power(a)
-        red = self.region.reduce(power)
-        return self._detail(self.exact(a), power[0], red)
+        red = region.reduce(power)
+        return self._detail(self.exact(a), power[0], red, region)
 
 
 class DirectPatternEngine(_Engine):

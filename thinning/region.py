@@ -47,6 +47,9 @@ class SampleGrid:
     n_full_cols : int
         Columns of the full (not half) grid: the FFT length along u for a periodic grid,
         ``2·nc − 1`` for a direct grid.
+    full : bool
+        The whole period is stored (columns wrap like rows), for complex excitations whose
+        pattern has no mirror symmetry. Periodic grids only.
     """
 
     nr: int
@@ -55,6 +58,7 @@ class SampleGrid:
     dv: float
     period: tuple[float, float | None] | None
     n_full_cols: int
+    full: bool = False
 
     @property
     def periodic(self) -> bool:
@@ -72,8 +76,19 @@ class SampleGrid:
         return np.where(s <= self.nr // 2, s, s - self.nr)
 
     @property
+    def signed_cols(self) -> np.ndarray:
+        """Signed column index of each storage column (wrapped like rows on a full grid)."""
+        c = np.arange(self.nc)
+        return np.where(c <= self.nc // 2, c, c - self.nc) if self.full else c
+
+    @property
+    def max_col(self) -> int:
+        """Largest |c| (full grid) or c (half plane) one storage column represents."""
+        return (self.nc - 1) // 2 if self.full else self.nc - 1
+
+    @property
     def u(self) -> np.ndarray:
-        return np.arange(self.nc) * self.du
+        return self.signed_cols * self.du
 
     @property
     def v(self) -> np.ndarray:
@@ -82,6 +97,8 @@ class SampleGrid:
     @property
     def col_mult(self) -> np.ndarray:
         """How many directions each column stands for: 2 where the mirror (−u, −v) is not stored."""
+        if self.full:
+            return np.ones(self.nc)
         m = np.full(self.nc, 2.0)
         m[0] = 1.0
         if self.periodic and self.n_full_cols % 2 == 0:
@@ -90,7 +107,8 @@ class SampleGrid:
 
     def flat(self, r, c) -> np.ndarray:
         """Storage index of signed row r and column c."""
-        return (np.asarray(r) % self.nr) * self.nc + np.asarray(c)
+        c = np.asarray(c) % self.nc if self.full else np.asarray(c)
+        return (np.asarray(r) % self.nr) * self.nc + c
 
     def neighbour(self, r, c, dr: int, dc: int) -> np.ndarray:
         """Storage index of the neighbour (r + dr, c + dc), or −1 where the grid has none.
@@ -99,6 +117,9 @@ class SampleGrid:
         """
         r2 = np.asarray(r) + dr
         c2 = np.asarray(c) + dc
+        if self.full:
+            ok = np.ones(np.shape(c2), dtype=bool) if self.nr > 1 else (r2 == 0)
+            return np.where(ok, self.flat(r2, c2), -1)
         left = c2 < 0
         r2 = np.where(left, -r2, r2)
         c2 = np.where(left, -c2, c2)
@@ -174,25 +195,26 @@ class SampledRegion:
         Samples per first-null width, which sets the size of the main-beam window.
     """
 
-    def __init__(self, grid: SampleGrid, radius: float, oversampling: float):
+    def __init__(self, grid: SampleGrid, radius: float, oversampling: float,
+                 centre=(0.0, 0.0)):
         self.grid = grid
         self.radius = float(radius)
         self.oversampling = float(oversampling)
-        u = grid.u[None, :]
-        v = grid.v[:, None]
+        self.centre = (float(centre[0]), float(centre[1]))
+        if self.centre != (0.0, 0.0) and not grid.full:
+            raise ValueError("an off-centre sidelobe disc needs a full (not half-plane) grid")
+        cu, cv = self.centre
+        u = grid.u[None, :] - cu
+        v = grid.v[:, None] - cv
         r2 = self.radius**2 * (1 + 1e-12)
         principal = (u**2 + v**2) <= r2
         if grid.periodic:
             tu, tv = grid.period
             count = np.zeros((grid.nr, grid.nc))
-            np_u = int(math.ceil(self.radius / tu)) + 1
-            qs = (
-                [0]
-                if tv is None
-                else range(
-                    -(int(math.ceil(self.radius / tv)) + 1), int(math.ceil(self.radius / tv)) + 2
-                )
-            )
+            reach = self.radius + math.hypot(cu, cv)
+            np_u = int(math.ceil(reach / tu)) + 1
+            qs = [0] if tv is None else range(-(int(math.ceil(reach / tv)) + 1),
+                                               int(math.ceil(reach / tv)) + 2)
             for p in range(-np_u, np_u + 1):
                 for q in qs:
                     vv = v if tv is None else v + q * tv
@@ -213,13 +235,14 @@ class SampledRegion:
         g = self.grid
         if radius is None:
             radius = WINDOW_NULLS * self.oversampling
-        cmax = g.nc - 1
+        cmax = g.max_col
         rmax = g.max_row if g.nr > 1 else 0
         radius = float(min(radius, max(cmax, rmax) + 1.0))
         if radius in self._windows:
             return self._windows[radius]
+        c_lo = -min(cmax, int(radius)) if g.full else 0
         cc, rr = np.meshgrid(
-            np.arange(0, min(cmax, int(radius)) + 1),
+            np.arange(c_lo, min(cmax, int(radius)) + 1),
             np.arange(-min(rmax, int(radius)), min(rmax, int(radius)) + 1),
         )
         cc, rr = cc.ravel(), rr.ravel()
@@ -259,7 +282,7 @@ class SampledRegion:
             cols=cc,
             parent=parent,
             jumps=jumps,
-            rim=(rho > radius - 1.0) & ((cc >= cmax) == False) & ~capped,  # noqa: E712
+            rim=(rho > radius - 1.0) & (np.abs(cc) < cmax) & ~capped,
             capped=capped,
             weight=self.weight[flat],
             w0=self.w0[flat],
@@ -393,21 +416,23 @@ class SampledRegion:
         """
         g = self.grid
         s, c = divmod(int(flat), g.nc)
-        u0 = c * g.du
+        u0 = g.signed_cols[c] * g.du
         v0 = g.signed_rows[s] * g.dv
         if not g.periodic:
             return np.array([u0, v0])
         tu, tv = g.period
+        cu, cv = self.centre
         best, best_r = None, math.inf
-        n_u = int(math.ceil(self.radius / tu)) + 1
-        n_v = 0 if tv is None else int(math.ceil(self.radius / tv)) + 1
+        reach = self.radius + math.hypot(cu, cv)
+        n_u = int(math.ceil(reach / tu)) + 1
+        n_v = 0 if tv is None else int(math.ceil(reach / tv)) + 1
         for p in range(-n_u, n_u + 1):
             for q in range(-n_v, n_v + 1):
                 if p == 0 and q == 0 and in_main_beam_weight > 0:
                     continue
                 uu = u0 + p * tu
                 vv = v0 + (0.0 if tv is None else q * tv)
-                rr = math.hypot(uu, vv)
+                rr = math.hypot(uu - cu, vv - cv)
                 if rr <= self.radius * (1 + 1e-12) and rr < best_r:
                     best, best_r = np.array([uu, vv]), rr
         return best if best is not None else np.array([u0, v0])
