@@ -70,12 +70,20 @@ def _directivity(peak: float, denominator: float) -> float:
     return 4 * math.pi * peak / denominator
 
 
-def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0) -> float:
+def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0, steer=(0.0, 0.0)) -> float:
     """Broadside directivity of excitations on a rectangular index grid  [1, linear].
 
     .. math::  D = \\frac{4\\pi\\,(\\sum a)^2}{\\sum_{m,n} a_m a_n K_q(|r_m - r_n|)}
 
     with the double sum taken over lags of the grid's autocorrelation (an FFT, float64).
+    Steered by phase to (u₀, v₀) = sin θ₀ (cos φ₀, sin φ₀), the peak moves there and
+
+    .. math::  D(\theta_0) = \frac{4\pi\,(\sum a)^2 \cos^q\theta_0}
+                                  {\sum_{m,n} a_m a_n \cos(k\,\rho_{mn}\cdot u_0)\,
+                                   K_q(|\rho_{mn}|)}
+
+    (the element kernel depends on |ρ| alone because the elements lie in one plane), which
+    follows the cell gain 4π·A·cos θ₀/λ² of a large filled aperture (conventions.md).
 
     Parameters
     ----------
@@ -83,6 +91,7 @@ def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0) -> float:
     pitch : (float, float)  [m]   grid pitch (gx, gy)
     wavelength : float  [m]
     q : float  [1]
+    steer : (float, float)  [1]   direction cosines (u₀, v₀) of the steered beam
     """
     a = np.asarray(grid, dtype=np.float64)
     if a.ndim == 1:
@@ -102,21 +111,43 @@ def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0) -> float:
     keep_c = np.abs(lag_c) < c
     acf = acf[np.ix_(keep_r, keep_c)]
     rho = np.hypot(lag_r[keep_r][:, None] * pitch[1], lag_c[keep_c][None, :] * pitch[0])
-    den = float(np.sum(acf * element_kernel(rho, wavelength, q)))
-    return _directivity(float(a.sum()) ** 2, den)
+    kern = element_kernel(rho, wavelength, q)
+    u0, v0 = steer
+    if u0 or v0:
+        k = 2 * math.pi / wavelength
+        kern = kern * np.cos(
+            k * (lag_r[keep_r][:, None] * pitch[1] * v0 + lag_c[keep_c][None, :] * pitch[0] * u0)
+        )
+    den = float(np.sum(acf * kern))
+    return _directivity(float(a.sum()) ** 2 * _element_gain(steer, q), den)
 
 
-def directivity_points(x, y, weights, wavelength: float, q: float = 1.0) -> float:
-    """Broadside directivity of elements at arbitrary positions (pairwise sum, chunked)  [1]."""
+def _element_gain(steer, q) -> float:
+    """cosᵠθ₀ of the element pattern in the steered direction."""
+    s2 = steer[0] ** 2 + steer[1] ** 2
+    if q == 0:
+        return 1.0
+    return max(0.0, 1.0 - s2) ** (q / 2)
+
+
+def directivity_points(x, y, weights, wavelength: float, q: float = 1.0, steer=(0.0, 0.0)) -> float:
+    """Directivity of elements at arbitrary positions (pairwise sum, chunked)  [1].
+
+    Same formula as :func:`directivity_grid`, with the pairs summed explicitly.
+    """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     a = np.asarray(weights, dtype=float)
     den = 0.0
     step = max(1, PAIR_CHUNK // max(1, x.size))
     for s in range(0, x.size, step):
-        rho = np.hypot(x[s : s + step, None] - x[None, :], y[s : s + step, None] - y[None, :])
-        den += float(a[s : s + step] @ element_kernel(rho, wavelength, q) @ a)
-    return _directivity(float(a.sum()) ** 2, den)
+        dx = x[s : s + step, None] - x[None, :]
+        dy = y[s : s + step, None] - y[None, :]
+        kern = element_kernel(np.hypot(dx, dy), wavelength, q)
+        if steer[0] or steer[1]:
+            kern *= np.cos(2 * math.pi / wavelength * (dx * steer[0] + dy * steer[1]))
+        den += float(a[s : s + step] @ kern @ a)
+    return _directivity(float(a.sum()) ** 2 * _element_gain(steer, q), den)
 
 
 def cell_gain_rule(n: int, cell_area: float, wavelength: float) -> float:

@@ -1,0 +1,180 @@
+"""``thinning stress``: scanning, band edges, errors, quantisation and failures of a layout."""
+
+from __future__ import annotations
+
+import json
+
+import click
+
+from . import cli
+from ._options import check_angle, check_exponent, check_frequency
+
+__all__ = ["stress"]
+
+
+def _band(ctx, param, value):
+    if value is None:
+        return None
+    try:
+        lo, hi = (float(v) for v in value.split(":"))
+    except ValueError:
+        raise click.BadParameter(f"{value!r}: expected LO:HI in GHz, e.g. 8.5:10.5") from None
+    if not (0 < lo < hi):
+        raise click.BadParameter(f"{value!r}: expected 0 < LO < HI")
+    return lo, hi
+
+
+def format_stress(r: dict) -> str:
+    """The readable form of a stress analysis."""
+    out = [
+        f"{r['elements']} elements at {r['frequency_ghz']:g} GHz, scan cone "
+        f"{r['scan_max_deg']:g} deg, element cos^{r['element_exponent']:g}",
+        "",
+        "Scan (phase steering at the design frequency):",
+        f"  {'theta':>6} {'phi':>5} {'PSL dB':>8} {'gain dBi':>9} {'scan loss':>9} "
+        f"{'HPBW deg':>9} {'broadening':>10} {'1/cos':>6}",
+    ]
+    for s in r["scan"]:
+        out.append(
+            f"  {s['theta_deg']:>6.1f} {s['phi_deg']:>5.0f} {s['psl_db']:>8.2f} "
+            f"{s['gain_dbi']:>9.2f} {s['scan_loss_db']:>9.2f} "
+            f"{(s['hpbw_deg'] or float('nan')):>9.3f} "
+            f"{(s['hpbw_broadening'] or float('nan')):>10.4f} {s['cos_law']:>6.4f}"
+        )
+    if "band" in r:
+        out += [
+            "",
+            f"Band edges ({r['band'][0]['steering']} steering):",
+            f"  {'GHz':>8} {'command':>8} {'beam':>8} {'squint':>7} {'PSL dB':>8}  grating lobe",
+        ]
+        for b in r["band"]:
+            out.append(
+                f"  {b['frequency_ghz']:>8.4f} {b['theta_command_deg']:>8.2f} "
+                f"{b['theta_beam_deg']:>8.2f} {b['squint_deg']:>7.2f} {b['psl_db']:>8.2f}  "
+                f"{'YES' if b['grating_lobe'] else 'no'}"
+            )
+    mc = r["monte_carlo"]
+    m = mc["model"]
+    out += [
+        "",
+        f"Monte Carlo, {mc['trials']} trials (amplitude {m['amplitude_error_db']:g} dB rms, "
+        f"phase {m['phase_error_deg']:g} deg rms, "
+        f"{m['phase_bits'] or 'continuous'} bits, {m['failures']} failed):",
+        f"  PSL nominal {r['psl_db']['nominal']:.2f} dB, median {r['psl_db']['median']:.2f} dB, "
+        f"90th percentile {r['psl_db']['p90']:.2f} dB",
+        f"  ASL nominal {r['asl_db']['nominal']:.2f} dB, mean {r['asl_db']['mean']:.2f} dB; "
+        f"published error floor {r['floor_asl_db'] if r['floor_asl_db'] is not None else 'n/a'} dB, "
+        f"nominal + floor {r['expected_asl_db']:.2f} dB",
+        "",
+        "Idealised model (no mutual coupling): verify by full-wave simulation and measurement.",
+    ]
+    return "\n".join(out)
+
+
+@cli.command()
+@click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
+@click.option(
+    "--freq-ghz",
+    type=float,
+    required=True,
+    callback=check_frequency,
+    help="Design frequency [GHz].",
+)
+@click.option(
+    "--scan-max-deg",
+    type=float,
+    default=0.0,
+    show_default=True,
+    callback=check_angle,
+    help="Half-angle of the scan cone [deg].",
+)
+@click.option(
+    "--element-exponent",
+    type=float,
+    default=1.0,
+    show_default=True,
+    callback=check_exponent,
+    help="Element power pattern cos^Q(theta).",
+)
+@click.option(
+    "--band-ghz",
+    callback=_band,
+    default=None,
+    metavar="LO:HI",
+    help="Band edges [GHz] for the squint and grating-lobe table.",
+)
+@click.option(
+    "--steering",
+    type=click.Choice(["phase", "delay"]),
+    default="phase",
+    show_default=True,
+    help="Phase shifters squint across the band; delay does not.",
+)
+@click.option(
+    "--amplitude-error-db",
+    type=click.FloatRange(0, 10),
+    default=0.0,
+    show_default=True,
+    help="rms amplitude error [dB].",
+)
+@click.option(
+    "--phase-error-deg",
+    type=click.FloatRange(0, 180),
+    default=0.0,
+    show_default=True,
+    help="rms phase error [deg].",
+)
+@click.option(
+    "--phase-bits",
+    type=click.IntRange(1, 16),
+    default=None,
+    help="Phase-shifter bits (decorrelated quantisation).",
+)
+@click.option(
+    "--failures",
+    type=click.IntRange(min=0),
+    default=0,
+    show_default=True,
+    help="Elements failed per trial.",
+)
+@click.option("--trials", type=click.IntRange(min=1), default=200, show_default=True)
+@click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True)
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
+def stress(
+    layout_csv,
+    freq_ghz,
+    scan_max_deg,
+    element_exponent,
+    band_ghz,
+    steering,
+    amplitude_error_db,
+    phase_error_deg,
+    phase_bits,
+    failures,
+    trials,
+    seed,
+    as_json,
+):
+    """What the built array will do: scan, band edges, random errors and failures."""
+    from ..io.layout_csv import read_layout_csv
+    from ..stress import ErrorModel, stress_layout
+    from ..units import deg_to_rad, ghz_to_hz
+
+    layout = read_layout_csv(layout_csv)
+    band = None if band_ghz is None else (ghz_to_hz(band_ghz[0]), ghz_to_hz(band_ghz[1]))
+    model = ErrorModel(amplitude_error_db, phase_error_deg, phase_bits, failures)
+    r = stress_layout(
+        layout,
+        ghz_to_hz(freq_ghz),
+        deg_to_rad(scan_max_deg),
+        element_exponent,
+        band=band,
+        steering=steering,
+        model=model,
+        trials=trials,
+        seed=seed,
+    )
+    if as_json:
+        click.echo(json.dumps(r, allow_nan=False))
+    else:
+        click.echo(format_stress(r))

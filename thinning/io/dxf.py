@@ -1,0 +1,186 @@
+"""Write a layout as a DXF drawing for mechanical CAD.
+
+The file is DXF R2010 (AC1024) in millimetres (``$INSUNITS`` = 4, ``$MEASUREMENT`` = 1), made
+with ezdxf. Every kind of item sits on its own layer with its own colour, so a designer can
+switch them on and off or pick the element centres alone:
+
+========== ===== ============================================================================
+Layer      Colour Content
+========== ===== ============================================================================
+OUTLINE    7     The panel outline, a closed LWPOLYLINE.
+HOLES      1     One closed LWPOLYLINE per hole or cut-out.
+CLEARANCE  3     The boundary the element centres keep clear of (outline and holes moved
+                 inward by the edge clearance), dashed; only when the clearance is > 0.
+ELEMENTS   5     Per element a CIRCLE of the footprint diameter and a POINT at its centre.
+LABELS     8     Per element its id as TEXT, beside the circle.
+TITLE      6     The title, above the drawing.
+========== ===== ============================================================================
+
+Colours are AutoCAD Colour Index numbers. Coordinates are the layout's metres times 1000,
+written with full float64 precision (ezdxf writes the shortest text that reads back to the same
+float), so centres read back exactly.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from pathlib import Path
+
+import numpy as np
+
+from .atomic import atomic_write
+
+__all__ = ["write_layout_dxf", "DXF_LAYERS", "DXF_VERSION"]
+
+#: DXF version written (AutoCAD R2010).
+DXF_VERSION = "R2010"
+
+#: Layer names and their AutoCAD Colour Index (ACI) colours.
+DXF_LAYERS = {
+    "OUTLINE": 7,
+    "HOLES": 1,
+    "CLEARANCE": 3,
+    "ELEMENTS": 5,
+    "LABELS": 8,
+    "TITLE": 6,
+}
+
+#: ``$INSUNITS`` value for millimetres, and ``$MEASUREMENT`` value for metric.
+_INSUNITS_MM = 4
+_MEASUREMENT_METRIC = 1
+
+#: Linetype of the clearance boundary.
+_DASHED = "DASHED"
+
+
+def _one_line(text: str) -> str:
+    """Text without line breaks (a TEXT entity holds one line)."""
+    return " ".join(str(text).splitlines())
+
+
+def _closed_ring(msp, ring_mm: np.ndarray, layer: str, **attribs) -> None:
+    """Add a ring (first point repeated at the end, as shapely gives it) as a closed LWPOLYLINE."""
+    pts = np.asarray(ring_mm, dtype=np.float64)
+    if len(pts) > 1 and np.array_equal(pts[0], pts[-1]):
+        pts = pts[:-1]
+    msp.add_lwpolyline(
+        [(float(x), float(y)) for x, y in pts],
+        format="xy",
+        close=True,
+        dxfattribs={"layer": layer, **attribs},
+    )
+
+
+def write_layout_dxf(
+    path: str | os.PathLike,
+    layout,
+    aperture=None,
+    *,
+    footprint_mm: float | None = None,
+    title: str = "",
+    labels: bool = True,
+) -> Path:
+    """Write a layout as a DXF R2010 drawing in millimetres.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The ``.dxf`` file to write; its folder must exist. Written atomically: the file appears
+        complete or not at all.
+    layout : thinning.layout.Layout
+        Element positions  [m]; written in mm.
+    aperture : thinning.aperture.Aperture, optional
+        The panel. When None (for example a layout file scored without its spec) no outline,
+        holes or clearance are drawn: the OUTLINE, HOLES and CLEARANCE layers exist but are
+        empty.
+    footprint_mm : float, optional  [mm]
+        Diameter of the element circles. Default: 0.8 × the smallest distance between two
+        elements (:func:`thinning.drawing.default_footprint_mm`).
+    title : str, optional
+        Text on the TITLE layer, above the drawing; one TEXT per line. Default: the element
+        count (:func:`thinning.drawing.layout_title` makes a fuller one).
+    labels : bool
+        Write each element's id on the LABELS layer, height footprint/3, to the upper right of
+        its circle.
+
+    Returns
+    -------
+    pathlib.Path
+        The path written.
+
+    Raises
+    ------
+    OutputError
+        The folder is missing or not writable, or ``path`` is a folder.
+    ValueError
+        ``footprint_mm`` is not a positive finite number.
+    """
+    import ezdxf
+
+    from ..drawing import _footprint, _rings_mm, layout_title
+
+    path = Path(path)
+    d = _footprint(layout, footprint_mm)
+    r = d / 2.0
+    xy = np.column_stack([layout.x, layout.y]) * 1e3
+
+    doc = ezdxf.new(DXF_VERSION, units=_INSUNITS_MM)
+    doc.header["$INSUNITS"] = _INSUNITS_MM
+    doc.header["$MEASUREMENT"] = _MEASUREMENT_METRIC
+    dash = max(d / 2.0, 0.5)
+    doc.linetypes.add(_DASHED, pattern=[1.5 * dash, dash, -0.5 * dash], description="__ __ __")
+    for name, colour in DXF_LAYERS.items():
+        attribs = {"linetype": _DASHED} if name == "CLEARANCE" else {}
+        doc.layers.add(name, color=colour, **attribs)
+    msp = doc.modelspace()
+
+    lo, hi = xy.min(axis=0) - r, xy.max(axis=0) + r
+    if aperture is not None:
+        _closed_ring(msp, aperture.outline_mm(), "OUTLINE")
+        for hole in aperture.holes_mm():
+            _closed_ring(msp, hole, "HOLES")
+        if aperture.edge_clearance > 0:
+            for ring in _rings_mm(aperture.usable):
+                _closed_ring(msp, ring, "CLEARANCE")
+        xmin, ymin, xmax, ymax = (b * 1e3 for b in aperture.bounds)
+        lo, hi = np.minimum(lo, [xmin, ymin]), np.maximum(hi, [xmax, ymax])
+
+    for x, y in xy:
+        centre = (float(x), float(y))
+        msp.add_circle(centre, r, dxfattribs={"layer": "ELEMENTS"})
+        msp.add_point(centre, dxfattribs={"layer": "ELEMENTS"})
+
+    if labels:
+        h = d / 3.0
+        off = r * np.sqrt(0.5)  # on the circle, at 45° to the upper right
+        for (x, y), text in zip(xy, layout.element_ids, strict=True):
+            msp.add_text(
+                _one_line(text),
+                height=h,
+                dxfattribs={"layer": "LABELS", "insert": (float(x + off), float(y + off))},
+            )
+
+    span = float(max(hi - lo))
+    th = max(0.02 * span, d / 2.0)
+    lines = (title or layout_title(layout)).splitlines() or [""]
+    for k, line in enumerate(reversed(lines)):
+        msp.add_text(
+            line,
+            height=th,
+            dxfattribs={
+                "layer": "TITLE",
+                "insert": (float(lo[0]), float(hi[1] + th * (1 + 1.6 * k))),
+            },
+        )
+
+    top = hi[1] + th * (1.6 * len(lines) + 1)
+    centre = ((lo[0] + hi[0]) / 2.0, (lo[1] + top) / 2.0)
+    doc.set_modelspace_vport(
+        height=1.1 * float(max(top - lo[1], (hi[0] - lo[0]) / 1.5)), center=centre
+    )
+
+    stream = io.StringIO()
+    doc.write(stream)
+    atomic_write(path, doc.encode(stream.getvalue()))
+    return path

@@ -1,0 +1,430 @@
+r"""What a built array will do: scanning, band edges, errors, quantisation and failures.
+
+Three analyses of one layout:
+
+* **scan table** — PSL, gain and half-power beamwidth for beams steered across the cone. A
+  beam steered by phase to (u₀, v₀) sees the visible region |(u, v)| ≤ 1 as the disc of
+  radius 1 centred at (−u₀, −v₀) of the unsteered array factor; the gain includes the element
+  pattern and so the cos θ₀ scan loss of a cos θ element; the beam broadens about as
+  1/cos θ₀ (references.md row 8).
+* **band table** — at the band edges a phase shifter applies the phase of the design
+  frequency f₀, so the beam squints to sin θ = (f₀/f)·sin θ₀; a true time delay keeps it at
+  θ₀. The pattern itself scales with the wavelength; grating lobes that enter the visible
+  region at the upper band edge show up as a PSL near 0 dB and are flagged.
+* **Monte Carlo** — random amplitude errors (dB rms), phase errors (degrees rms), B-bit
+  phase quantisation (decorrelated by each element's random insertion phase, which the phase
+  shifter calibrates out) and K random element failures. Each trial's PSL and ASL are taken
+  over the nominal sidelobe region (the main beam cut from the error-free pattern), relative
+  to the trial's own beam peak. Beside them the published floor (references.md rows 11–12;
+  Mailloux ch. 7, memory; Miller 1964, memory)
+
+  .. math::
+
+     \mathrm{ASL}_\mathrm{err} \approx
+        \frac{(1 - P) + \delta^2 + P\,(\phi^2 + \sigma_q^2)}{P\,\eta_a N},\qquad
+     \sigma_q^2 = \frac{\pi^2}{3\cdot 2^{2B}},\qquad \eta_a = \frac{(\sum a)^2}{N \sum a^2}
+
+  with P the fraction of elements working. δ² is the mean-square relative amplitude error,
+  E[(10^{ε/20} − 1)²] for ε ~ N(0, S²) dB.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import metrics
+from .exact import GridExact, refine_peaks
+from .lattice import generated_lattice, grating_lobe_positions
+from .layout import Layout
+from .errors import LayoutError
+from .pattern import DirectPatternEngine, FFTPatternEngine, _mb_weight
+from .units import to_db
+from .units import wavelength as wavelength_of
+
+__all__ = [
+    "ErrorModel",
+    "scan_table",
+    "band_table",
+    "monte_carlo",
+    "error_floor",
+    "amplitude_error_variance",
+    "stress_layout",
+]
+
+
+@dataclass(frozen=True)
+class ErrorModel:
+    """Random errors of a built array.
+
+    Parameters
+    ----------
+    amplitude_db : float  [dB]   rms amplitude error
+    phase_deg : float  [deg]     rms phase error
+    phase_bits : int or None     phase-shifter bits (None: continuous phase)
+    failures : int               elements failed (off) per trial
+    """
+
+    amplitude_db: float = 0.0
+    phase_deg: float = 0.0
+    phase_bits: int | None = None
+    failures: int = 0
+
+    @property
+    def any(self) -> bool:
+        return bool(self.amplitude_db or self.phase_deg or self.phase_bits or self.failures)
+
+
+def amplitude_error_variance(amplitude_db: float) -> float:
+    """δ² = E[(10^{ε/20} − 1)²] for ε ~ N(0, S²) dB  [1] (exact for the log-normal)."""
+    s = amplitude_db * math.log(10) / 20
+    return math.exp(2 * s * s) - 2 * math.exp(s * s / 2) + 1
+
+
+def quantisation_variance(bits: int | None) -> float:
+    """σ_q² = π²/(3·2^{2B}) rad² of decorrelated B-bit phase quantisation (row 12)."""
+    if not bits:
+        return 0.0
+    return math.pi**2 / (3 * 4.0**bits)
+
+
+def error_floor(n: int, weights, model: ErrorModel) -> float:
+    """The published ASL floor of random errors and failures  [1, linear] (module docstring)."""
+    a = np.asarray(weights, dtype=float)
+    eta = float(a.sum() ** 2 / (a.size * (a**2).sum()))
+    p = (n - model.failures) / n
+    d2 = amplitude_error_variance(model.amplitude_db)
+    ph2 = math.radians(model.phase_deg) ** 2 + quantisation_variance(model.phase_bits)
+    return ((1 - p) + d2 + p * ph2) / (p * eta * n)
+
+
+# -- set-up -----------------------------------------------------------------------------------
+class _Array:
+    """A layout prepared for repeated pattern evaluation at one wavelength."""
+
+    def __init__(self, layout: Layout, wavelength: float, oversampling: float = 4.0):
+        self.layout = layout
+        self.wavelength = wavelength
+        self.fit = layout.grid_fit()
+        fit = self.fit
+        if fit is not None:
+            rows, cols = fit.shape
+            self.grid = np.zeros((rows, cols))
+            self.grid[fit.row, fit.col] = layout.weights
+            self.engine = FFTPatternEngine(
+                (rows, cols),
+                fit.pitch,
+                wavelength,
+                0.0,
+                oversampling,
+                linear=fit.linear,
+                full=True,
+                workers=-1,
+            )
+            self.step = (self.engine.grid.du, self.engine.grid.dv)
+        else:
+            self.grid = None
+            self.engine = DirectPatternEngine(
+                layout.x,
+                layout.y,
+                layout.weights,
+                wavelength,
+                0.0,
+                oversampling,
+                linear=layout.is_linear,
+            )
+            self.step = (self.engine.grid.du, self.engine.grid.dv)
+        self.linear = fit.linear if fit is not None else layout.is_linear
+
+    def basis(self):
+        if self.fit is None:
+            return None
+        gx, gy = self.fit.pitch
+        b = generated_lattice(self.fit.col, self.fit.row) * np.array([[gx], [gy]])
+        if self.linear:
+            b = np.array([[max(b[0, 0], b[0, 1]) or gx, 0.0], [0.0, 0.0]])
+        return b
+
+    def psl(self, centre, radius=1.0):
+        """Refined PSL of the steered beam whose visible disc is centred at ``centre``."""
+        if self.grid is not None:
+            region = self.engine.region_for(radius, centre)
+            return self.engine.detail(self.grid, region)
+        eng = DirectPatternEngine(
+            self.layout.x,
+            self.layout.y,
+            self.layout.weights,
+            self.wavelength,
+            math.asin(min(1.0, math.hypot(*centre))),
+            linear=self.linear,
+        )
+        d = eng.detail()  # a disc around the origin that holds the shifted visible region
+        return d
+
+    def exact(self):
+        if self.grid is not None:
+            return self.engine.exact(self.grid)
+        return self.engine.pexact
+
+    def directivity(self, q, steer):
+        if self.fit is not None:
+            gx, gy = self.fit.pitch
+            return metrics.directivity_grid(
+                self.grid, (gx, 0.0 if self.linear else gy), self.wavelength, q, steer
+            )
+        return metrics.directivity_points(
+            self.layout.x, self.layout.y, self.layout.weights, self.wavelength, q, steer
+        )
+
+
+def _db(x):
+    return None if x is None or not x > 0 else round(float(to_db(x)), 4)
+
+
+# -- scan ------------------------------------------------------------------------------------
+def scan_table(
+    layout: Layout,
+    frequency: float,
+    scan_max: float,
+    q: float = 1.0,
+    steps: int = 4,
+    planes_deg=(0.0, 45.0, 90.0),
+) -> list[dict]:
+    """PSL, gain and beamwidth for beams steered across the cone.
+
+    Parameters
+    ----------
+    frequency : float  [Hz]
+    scan_max : float  [rad]
+    steps : int   scan angles 0 … θmax (inclusive) per plane
+    planes_deg : scan planes φ₀  [deg] (one plane, φ₀ = 0, for a linear array)
+
+    Returns
+    -------
+    list of dict with theta_deg, phi_deg, psl_db, gain_dbi, scan_loss_db, hpbw_deg,
+    hpbw_broadening (ratio to broadside), cos_law (1/cos θ₀)
+    """
+    lam = wavelength_of(frequency)
+    arr = _Array(layout, lam)
+    if arr.linear:
+        planes_deg = (0.0,)
+    thetas = np.linspace(0.0, scan_max, max(2, steps)) if scan_max > 0 else np.array([0.0])
+    exact = arr.exact()
+    g0 = arr.directivity(q, (0.0, 0.0))
+    rows = []
+    widths = {}
+    for phi_deg in planes_deg:
+        phi = math.radians(phi_deg)
+        dirn = (math.cos(phi), math.sin(phi))
+        dp, dm = metrics.half_power_offsets(exact, dirn, 0.5 * min(s for s in arr.step if s > 0))
+        widths[phi_deg] = (dp, dm)
+        bw0 = metrics.beamwidth_deg(dp, dm)
+        for th in thetas:
+            if phi_deg != planes_deg[0] and th == 0:
+                continue
+            s = math.sin(th)
+            u0, v0 = s * dirn[0], s * dirn[1]
+            det = arr.psl((-u0, -v0))
+            g = arr.directivity(q, (u0, v0))
+            bw = metrics.beamwidth_deg(dp, dm, s)
+            rows.append(
+                {
+                    "theta_deg": round(math.degrees(th), 4),
+                    "phi_deg": phi_deg,
+                    "psl_db": _db(det.psl),
+                    "gain_dbi": _db(g),
+                    "scan_loss_db": round(float(to_db(g / g0)), 4),
+                    "hpbw_deg": None if bw is None else round(bw, 4),
+                    "hpbw_broadening": None if (bw is None or bw0 is None) else round(bw / bw0, 5),
+                    "cos_law": round(1 / math.cos(th), 5),
+                }
+            )
+    return rows
+
+
+# -- band edges ------------------------------------------------------------------------------
+def band_table(
+    layout: Layout, frequency: float, band, scan_max: float, steering: str = "phase", steps: int = 3
+) -> list[dict]:
+    """Beam pointing, squint, PSL and grating lobes at the band edges (scan plane φ = 0).
+
+    Parameters
+    ----------
+    frequency : float  [Hz]   design frequency f₀
+    band : (float, float)  [Hz]   lower and upper band edge
+    steering : "phase" or "delay"
+    """
+    if steering not in ("phase", "delay"):
+        raise ValueError(f"steering {steering!r}: expected 'phase' or 'delay'")
+    thetas = np.linspace(0.0, scan_max, max(2, steps)) if scan_max > 0 else np.array([0.0])
+    rows = []
+    for f in (band[0], frequency, band[1]):
+        lam = wavelength_of(f)
+        arr = _Array(layout, lam)
+        basis = arr.basis()
+        for th in thetas:
+            u_cmd = math.sin(th)
+            u_beam = u_cmd * (frequency / f) if steering == "phase" else u_cmd
+            theta_beam = math.degrees(math.asin(max(-1.0, min(1.0, u_beam))))
+            det = arr.psl((-u_beam, 0.0))
+            gl = False
+            if basis is not None:
+                # replicas at G + u_beam; only |G| ≤ 2 can reach the visible disc
+                cand = grating_lobe_positions(basis, lam, math.pi / 2)
+                gl = bool(np.any(np.hypot(cand[:, 0] + u_beam, cand[:, 1]) <= 1.0 + 1e-12))
+            rows.append(
+                {
+                    "frequency_ghz": round(f / 1e9, 6),
+                    "steering": steering,
+                    "theta_command_deg": round(math.degrees(th), 4),
+                    "theta_beam_deg": round(theta_beam, 4),
+                    "squint_deg": round(theta_beam - math.degrees(th), 4),
+                    "psl_db": _db(det.psl),
+                    "grating_lobe": gl,
+                }
+            )
+    return rows
+
+
+# -- Monte Carlo -----------------------------------------------------------------------------
+def monte_carlo(
+    layout: Layout,
+    frequency: float,
+    scan_max: float,
+    model: ErrorModel,
+    trials: int = 200,
+    seed: int = 0,
+    batch: int = 16,
+) -> dict:
+    """PSL and ASL statistics of the layout under random errors (broadside beam).
+
+    Returns
+    -------
+    dict with psl_db {nominal, median, p90, min, max}, asl_db {nominal, mean},
+    floor_asl_db, expected_asl_db (nominal ASL plus the floor), trials, model
+    """
+    lam = wavelength_of(frequency)
+    fit = layout.grid_fit()
+    if fit is None:
+        raise LayoutError(
+            f"{layout.source or 'layout'}: the error analysis needs positions on "
+            "one regular grid (within 1 µm); this layout is off-lattice"
+        )
+    n = len(layout)
+    if model.failures >= n:
+        raise LayoutError(f"--failures {model.failures}: the layout has only {n} elements")
+    rows, cols = fit.shape
+    w = layout.weights
+    eng = FFTPatternEngine(
+        (rows, cols),
+        fit.pitch,
+        lam,
+        scan_max,
+        4.0,
+        linear=fit.linear,
+        full=True,
+        dtype=np.float64,
+        workers=-1,
+    )
+    region = eng.region
+    nominal = np.zeros((rows, cols))
+    nominal[fit.row, fit.col] = w
+    p0 = eng.power(nominal)
+    red = region.reduce(p0)
+    weff = region.effective_weight(red, 0)  # the nominal sidelobe region
+    nom = eng.detail(nominal)
+    rng = np.random.default_rng(seed)
+    sa = model.amplitude_db
+    sp = math.radians(model.phase_deg)
+    lsb = 2 * math.pi / 2**model.phase_bits if model.phase_bits else 0.0
+    psl = np.empty(trials)
+    asl = np.empty(trials)
+    mask = weff > 0
+    wsum = float(weff.sum())
+    for s in range(0, trials, batch):
+        k = min(batch, trials - s)
+        amp = np.broadcast_to(w, (k, n)) * 10 ** (rng.normal(0, 1, (k, n)) * sa / 20)
+        ph = rng.normal(0, 1, (k, n)) * sp
+        if lsb:
+            insertion = rng.uniform(0, 2 * math.pi, (k, n))
+            command = -insertion  # the phase shifter cancels the insertion phase...
+            ph += np.round(command / lsb) * lsb - command  # ...to within its resolution
+        if model.failures:
+            dead = np.argsort(rng.random((k, n)), axis=1)[:, : model.failures]
+            np.put_along_axis(amp, dead, 0.0, axis=1)
+        exc = amp * np.exp(1j * ph)
+        grids = np.zeros((k, rows, cols), dtype=complex)
+        grids[:, fit.row, fit.col] = exc
+        p = eng.power(grids)
+        peak = np.abs(exc.sum(axis=1)) ** 2
+        pm = np.where(mask, p, -1.0)
+        arg = pm.argmax(axis=1)
+        samp = pm[np.arange(k), arg] / peak
+        asl[s : s + k] = (p @ weff) / wsum / peak
+        # refine each trial's highest sidelobe sample on its exact pattern
+        ex = GridExact(grids, (fit.pitch[0], 0.0 if fit.linear else fit.pitch[1]), lam)
+        uv = np.array([region.alias_point(int(f), _mb_weight(red, region, 0, int(f))) for f in arg])
+        ref, _, _ = refine_peaks(
+            ex,
+            uv[:, 0],
+            uv[:, 1],
+            (eng.grid.du, eng.grid.dv),
+            region.radius,
+            which=np.arange(k),
+            linear=fit.linear,
+        )
+        # the exact evaluator normalises by |Σa|², the same peak as above
+        psl[s : s + k] = np.maximum(samp, ref)
+    floor = error_floor(n, w, model)
+    psl_db = to_db(psl)
+    return {
+        "trials": trials,
+        "seed": seed,
+        "model": {
+            "amplitude_error_db": sa,
+            "phase_error_deg": model.phase_deg,
+            "phase_bits": model.phase_bits,
+            "failures": model.failures,
+        },
+        "psl_db": {
+            "nominal": _db(nom.psl),
+            "median": round(float(np.median(psl_db)), 4),
+            "p90": round(float(np.percentile(psl_db, 90)), 4),
+            "min": round(float(psl_db.min()), 4),
+            "max": round(float(psl_db.max()), 4),
+        },
+        "asl_db": {"nominal": _db(nom.asl), "mean": _db(float(asl.mean()))},
+        "floor_asl_db": _db(floor),
+        "expected_asl_db": _db(nom.asl + floor),
+        "psl_samples_db": [round(float(x), 4) for x in psl_db],
+    }
+
+
+def stress_layout(
+    layout: Layout,
+    frequency: float,
+    scan_max: float,
+    q: float = 1.0,
+    band=None,
+    steering: str = "phase",
+    model: ErrorModel | None = None,
+    trials: int = 200,
+    seed: int = 0,
+) -> dict:
+    """All three analyses in one dictionary (what ``thinning stress --json`` prints)."""
+    model = model or ErrorModel()
+    out = {
+        "elements": len(layout),
+        "frequency_ghz": frequency / 1e9,
+        "scan_max_deg": math.degrees(scan_max),
+        "element_exponent": q,
+        "scan": scan_table(layout, frequency, scan_max, q),
+    }
+    if band is not None:
+        out["band"] = band_table(layout, frequency, band, scan_max, steering)
+    mc = monte_carlo(layout, frequency, scan_max, model, trials, seed)
+    out.update({k: mc[k] for k in ("psl_db", "asl_db", "floor_asl_db", "expected_asl_db")})
+    out["monte_carlo"] = {k: v for k, v in mc.items() if k not in out}
+    return out
