@@ -160,8 +160,9 @@ class PointExact:
         return p / self.norm, g / self.norm, h / self.norm
 
 
-def refine_peaks(exact, u, v, step, radius, which=None, linear=False, iterations=12,
-                 centre=(0.0, 0.0)):
+def refine_peaks(
+    exact, u, v, step, radius, which=None, linear=False, iterations=12, centre=(0.0, 0.0)
+):
     """Climb from sample points to the local maxima of the exact pattern.
 
     A trust-region Newton iteration in sample-scaled coordinates, for all points at once: the

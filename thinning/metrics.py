@@ -71,9 +71,9 @@ def _directivity(peak: float, denominator: float) -> float:
 
 
 def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0, steer=(0.0, 0.0)) -> float:
-    """Broadside directivity of excitations on a rectangular index grid  [1, linear].
+    r"""Broadside directivity of excitations on a rectangular index grid  [1, linear].
 
-    .. math::  D = \\frac{4\\pi\\,(\\sum a)^2}{\\sum_{m,n} a_m a_n K_q(|r_m - r_n|)}
+    .. math::  D = \frac{4\pi\,(\sum a)^2}{\sum_{m,n} a_m a_n K_q(|r_m - r_n|)}
 
     with the double sum taken over lags of the grid's autocorrelation (an FFT, float64).
     Steered by phase to (u₀, v₀) = sin θ₀ (cos φ₀, sin φ₀), the peak moves there and

@@ -237,8 +237,7 @@ class FFTPatternEngine(_Engine):
         """
         key = (float(radius), float(centre[0]), float(centre[1]))
         if key not in self._regions:
-            self._regions[key] = SampledRegion(self.grid, radius, self.window_oversampling,
-                                               centre)
+            self._regions[key] = SampledRegion(self.grid, radius, self.window_oversampling, centre)
         return self._regions[key]
 
     @property

@@ -195,8 +195,7 @@ class SampledRegion:
         Samples per first-null width, which sets the size of the main-beam window.
     """
 
-    def __init__(self, grid: SampleGrid, radius: float, oversampling: float,
-                 centre=(0.0, 0.0)):
+    def __init__(self, grid: SampleGrid, radius: float, oversampling: float, centre=(0.0, 0.0)):
         self.grid = grid
         self.radius = float(radius)
         self.oversampling = float(oversampling)
@@ -213,8 +212,11 @@ class SampledRegion:
             count = np.zeros((grid.nr, grid.nc))
             reach = self.radius + math.hypot(cu, cv)
             np_u = int(math.ceil(reach / tu)) + 1
-            qs = [0] if tv is None else range(-(int(math.ceil(reach / tv)) + 1),
-                                               int(math.ceil(reach / tv)) + 2)
+            qs = (
+                [0]
+                if tv is None
+                else range(-(int(math.ceil(reach / tv)) + 1), int(math.ceil(reach / tv)) + 2)
+            )
             for p in range(-np_u, np_u + 1):
                 for q in qs:
                     vv = v if tv is None else v + q * tv

@@ -36,10 +36,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import metrics
+from .errors import LayoutError
 from .exact import GridExact, refine_peaks
 from .lattice import generated_lattice, grating_lobe_positions
 from .layout import Layout
-from .errors import LayoutError
 from .pattern import DirectPatternEngine, FFTPatternEngine, _mb_weight
 from .units import to_db
 from .units import wavelength as wavelength_of
