@@ -85,6 +85,40 @@ def layout_metadata(
     return meta
 
 
+def robust_summary(spec: Spec, problem, layout: Layout) -> dict:
+    """The error model of a robust design, its runtime cost, and a fresh Monte Carlo check."""
+    from .stress import monte_carlo
+
+    rng = np.random.default_rng(0)
+    g = problem.random_genomes(rng, 32)
+    t = time.perf_counter()
+    problem.evaluate(g)
+    robust_s = time.perf_counter() - t
+    problem.robust, saved = None, problem.robust
+    try:
+        t = time.perf_counter()
+        problem.evaluate(g)
+        nominal_s = time.perf_counter() - t
+    finally:
+        problem.robust = saved
+    m = saved
+    mc = monte_carlo(layout, spec.frequency, spec.scan_max, m, trials=200, seed=1)
+    return {
+        "model": {
+            "amplitude_error_db": m.amplitude_db,
+            "phase_error_deg": m.phase_deg,
+            "phase_bits": m.phase_bits,
+            "failures": m.failures,
+        },
+        "trials_per_evaluation": problem.robust_trials,
+        "percentile": problem.robust_percentile,
+        "cost_ratio_vs_nominal": round(robust_s / nominal_s, 2),
+        "check_200_trials": {
+            k: mc[k] for k in ("psl_db", "asl_db", "floor_asl_db", "expected_asl_db")
+        },
+    }
+
+
 def run_design(
     spec: Spec, out_dir, workers: int | None = None, progress=None, extra_outputs=None
 ) -> DesignResult:
@@ -124,6 +158,8 @@ def run_design(
     ).to_dict()
     metrics["scoring_s"] = round(time.perf_counter() - t, 3)
     meta = layout_metadata(spec, search, metrics, len(sites), problem)
+    if problem.robust is not None:
+        meta["robust"] = robust_summary(spec, problem, layout)
     files = [out / "layout.csv", out / "layout.json"]
     write_layout_csv(files[0], layout)
     atomic_write_json(files[1], meta)

@@ -113,6 +113,14 @@ class ThinningProblem:
     secondary_weight : float  [1]
     oversampling : float
     source : str, optional   spec file name, for messages
+    robust : thinning.stress.ErrorModel, optional
+        Robust design: score each layout by a percentile of its PSL over ``robust_trials``
+        random error draws (common to every layout, so that layouts are compared under the
+        same errors) instead of its nominal PSL; the ASL is the mean over the draws. Costs
+        about ``robust_trials`` times the work of a nominal evaluation.
+    robust_trials : int
+    robust_percentile : float  [%]
+    robust_seed : int
     """
 
     sites: Sites
@@ -127,6 +135,10 @@ class ThinningProblem:
     oversampling: float = 4.0
     source: str | None = None
     notes: list = field(default_factory=list)
+    robust: object = None
+    robust_trials: int = 16
+    robust_percentile: float = 90.0
+    robust_seed: int = 0
 
     def __post_init__(self):
         m = len(self.sites)
@@ -212,6 +224,37 @@ class ThinningProblem:
             self.oversampling,
             linear=self.sites.lattice.kind == "linear",
         )
+        if self.robust is not None:
+            self._init_robust()
+
+    def _init_robust(self):
+        from .stress import ErrorModel
+
+        model: ErrorModel = self.robust
+        if model.failures >= self.elements:
+            raise SpecError(
+                f"{where(self.source, 'robust.failures')}{model.failures}: not fewer "
+                f"than the {self.elements} elements"
+            )
+        m, t = len(self.sites), int(self.robust_trials)
+        rng = np.random.default_rng(self.robust_seed)
+        amp = 10 ** (rng.normal(0, 1, (t, m)) * model.amplitude_db / 20)
+        ph = rng.normal(0, 1, (t, m)) * math.radians(model.phase_deg)
+        if model.phase_bits:
+            lsb = 2 * math.pi / 2**model.phase_bits
+            command = -rng.uniform(0, 2 * math.pi, (t, m))  # cancels each insertion phase...
+            ph += np.round(command / lsb) * lsb - command  # ...to within one step
+        self._robust_weights = (amp * np.exp(1j * ph)).astype(np.complex64)
+        self._robust_priority = rng.random((t, m))  # which active elements fail first
+        self.robust_engine = FFTPatternEngine(
+            self.sites.grid_shape,
+            self.sites.lattice.grid_pitch,
+            self.wavelength,
+            self.scan_max,
+            self.oversampling,
+            linear=self.sites.lattice.kind == "linear",
+            full=True,
+        )
 
     # -- genomes ----------------------------------------------------------------------------
     @property
@@ -278,6 +321,8 @@ class ThinningProblem:
     def evaluate(self, genomes) -> Evaluation:
         """Objective, PSL and ASL of genomes (B, G), in fixed batches of :data:`BATCH`."""
         masks = self.to_masks(genomes)
+        if self.robust is not None:
+            return self._evaluate_robust(masks)
         psl = np.empty(masks.shape[0])
         asl = np.empty(masks.shape[0])
         for s in range(0, masks.shape[0], BATCH):
@@ -285,6 +330,31 @@ class ThinningProblem:
             sc = self.engine.evaluate(grids)
             psl[s : s + BATCH] = sc.psl_db
             asl[s : s + BATCH] = sc.asl_db
+        return Evaluation(self.combine(psl, asl), psl, asl)
+
+    def _evaluate_robust(self, masks) -> Evaluation:
+        """Percentile PSL and mean ASL of each mask over the fixed error draws (sampled
+        pattern, not refined: the search compares layouts under identical draws)."""
+        t = self._robust_weights.shape[0]
+        k = self.robust.failures
+        b = masks.shape[0]
+        psl = np.empty(b)
+        asl = np.empty(b)
+        for i in range(b):
+            w = self._robust_weights * masks[i]
+            if k:
+                pri = np.where(masks[i], self._robust_priority, np.inf)
+                dead = np.argpartition(pri, k - 1, axis=1)[:, :k]
+                np.put_along_axis(w, dead, 0, axis=1)
+            trial_psl = np.empty(t)
+            trial_asl = np.empty(t)
+            for s in range(0, t, BATCH):
+                grids = self.sites.to_grid(w[s : s + BATCH], dtype=np.complex64)
+                sc = self.robust_engine.evaluate(grids, refine=False)
+                trial_psl[s : s + BATCH] = sc.psl_db
+                trial_asl[s : s + BATCH] = sc.asl
+            psl[i] = np.percentile(trial_psl, self.robust_percentile)
+            asl[i] = 10 * np.log10(trial_asl.mean())
         return Evaluation(self.combine(psl, asl), psl, asl)
 
     def combine(self, psl_db, asl_db) -> np.ndarray:

@@ -67,6 +67,15 @@ KEYS = {
     | METHOD_OPTIONS,
     "constraints": {"symmetry", "pin_outer_ring", "pin_ids", "forbid_ids", "pin_mm", "forbid_mm"},
     "requirements": {"psl_db", "asl_db"},
+    "robust": {
+        "amplitude_error_db",
+        "phase_error_deg",
+        "phase_bits",
+        "failures",
+        "trials",
+        "percentile",
+        "seed",
+    },
     "output": {"footprint_mm", "labels"},
     "name": None,
     "description": None,
@@ -121,6 +130,10 @@ class Spec:
     requirements: dict
     output: dict
     warnings: list = field(default_factory=list)
+    robust: object = None
+    robust_trials: int = 16
+    robust_percentile: float = 90.0
+    robust_seed: int = 0
 
     @property
     def wavelength(self) -> float:
@@ -192,6 +205,10 @@ class Spec:
             secondary_weight=self.secondary_weight,
             oversampling=self.oversampling,
             source=src,
+            robust=self.robust,
+            robust_trials=self.robust_trials,
+            robust_percentile=self.robust_percentile,
+            robust_seed=self.robust_seed,
         )
 
 
@@ -398,6 +415,33 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
             output["footprint_mm"], src, "output.footprint_mm", lo=0, lo_open=True
         )
 
+    robust, rob = None, raw.get("robust")
+    r_trials, r_pct, r_seed = 16, 90.0, 0
+    if rob is not None:
+        from .stress import ErrorModel
+
+        bits = rob.get("phase_bits")
+        robust = ErrorModel(
+            amplitude_db=_number(
+                rob.get("amplitude_error_db", 0.0), src, "robust.amplitude_error_db", lo=0, hi=10
+            ),
+            phase_deg=_number(
+                rob.get("phase_error_deg", 0.0), src, "robust.phase_error_deg", lo=0, hi=180
+            ),
+            phase_bits=None
+            if bits is None
+            else _number(bits, src, "robust.phase_bits", lo=1, hi=16, integer=True),
+            failures=_number(rob.get("failures", 0), src, "robust.failures", lo=0, integer=True),
+        )
+        r_trials = _number(rob.get("trials", 16), src, "robust.trials", lo=2, hi=1000, integer=True)
+        r_pct = _number(rob.get("percentile", 90.0), src, "robust.percentile", lo=0, hi=100)
+        r_seed = _number(rob.get("seed", 0), src, "robust.seed", lo=0, integer=True)
+        if not robust.any:
+            raise SpecError(
+                f"{where(src, 'robust')}states no error: give at least one of "
+                "amplitude_error_db, phase_error_deg, phase_bits, failures"
+            )
+
     lam = wavelength(ghz_to_hz(freq_ghz))
     scan = deg_to_rad(scan_deg)
     glob = grating_lobe_positions(lattice.basis, lam, scan)
@@ -437,4 +481,8 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         requirements=req,
         output=output,
         warnings=warnings,
+        robust=robust,
+        robust_trials=r_trials,
+        robust_percentile=r_pct,
+        robust_seed=r_seed,
     )
