@@ -386,7 +386,7 @@ def fig_uv_map(
     if psl_db is not None and math.isfinite(psl_db):
         floor = max(floor, psl_db - 30.0)
     if v is None:  # linear array: a line against u
-        fig = _new_figure((7.0, 3.8))
+        fig = _new_figure((7.0, 4.4))
         ax = fig.add_subplot()
         ax.plot(u, np.maximum(p_db, floor), lw=0.9, color="C0", label="|AF|²")
         marks = [(1.0, "k", "-", "visible region |u| = 1")]
@@ -403,10 +403,10 @@ def fig_uv_map(
         ax.set_xlabel("u = sin θ cos φ  [1]")
         ax.set_ylabel("normalised |AF|²  [dB]")
         ax.set_title("Array factor along u (linear array, isotropic elements)")
-        ax.legend(loc="lower center", fontsize=7, framealpha=0.9)
+        fig.legend(loc="outside lower center", ncols=2, fontsize=7)
         ax.grid(alpha=0.3)
         return fig
-    fig = _new_figure((6.6, 5.6))
+    fig = _new_figure((6.6, 6.0))
     ax = fig.add_subplot()
     hu = (u[1] - u[0]) / 2 if u.size > 1 else 0.5
     hv = (v[1] - v[0]) / 2 if v.size > 1 else 0.5
@@ -429,7 +429,7 @@ def fig_uv_map(
     ax.set_xlabel("u = sin θ cos φ  [1]")
     ax.set_ylabel("v = sin θ sin φ  [1]")
     ax.set_title("Array factor in u-v (broadside beam, isotropic elements)")
-    ax.legend(loc="upper right", fontsize=7, framealpha=0.85)
+    fig.legend(loc="outside lower center", ncols=2, fontsize=7, facecolor="0.85")
     return fig
 
 
@@ -632,8 +632,11 @@ def fig_layout(layout: Layout, aperture=None, sites=None) -> Figure:
         )
     ax.scatter(x, y, s=size, color="C0", lw=0, label=f"element ({len(layout)})")
     ax.set_xlabel("x  [mm]")
-    ax.set_ylabel("y  [mm]")
-    if not linear:
+    if linear:
+        ax.set_yticks([])
+        ax.set_ylabel(f"y = {float(np.mean(y)):.3g} mm")
+    else:
+        ax.set_ylabel("y  [mm]")
         ax.set_aspect("equal")
     title = f"{len(layout)} elements" + (f" on {m} sites" if sites is not None else "")
     ax.set_title(title, fontsize=10)

@@ -123,7 +123,8 @@ def _row(label: str, value: str, key: str | None = None, raw=None, note: str = "
         if _finite(raw):
             attrs += f' data-value="{_e(repr(float(raw)))}"'
     cell_note = f'<td class="note">{_e(note)}</td>' if note else "<td></td>"
-    return f'<tr><th scope="row">{_e(label)}</th><td class="num"{attrs}>{_e(value)}</td>{cell_note}</tr>'
+    head = f'<tr><th scope="row">{_e(label)}</th>'
+    return f'{head}<td class="num"{attrs}>{_e(value)}</td>{cell_note}</tr>'
 
 
 def _pair(values, digits=2, unit="°") -> str:
@@ -302,12 +303,11 @@ def _comparison(metrics, history, baseline, provenance, png) -> str:
     )
     d = metrics.get("psl_db")
     b = _get(baseline, "psl_db")
-    gain = (
-        f"<p>The design's PSL is {_e(_num(float(b) - float(d), 2, 'dB'))} below the best of "
-        f"random.</p>"
-        if _finite(d) and _finite(b)
-        else ""
-    )
+    gain = ""
+    if _finite(d) and _finite(b):
+        delta = float(b) - float(d)
+        word = "below" if delta >= 0 else "above"
+        gain = f"<p>The design's PSL is {_e(_num(abs(delta), 2, 'dB'))} {word} best-of-random.</p>"
     return (
         '<table class="comparison"><thead><tr><th></th><th>PSL</th><th>ASL</th>'
         "<th>evaluations</th></tr></thead><tbody>"
@@ -503,7 +503,8 @@ def report_for_layout(
         layout, frequency_hz, scan_max, q, sites=len(site_xy) if site_xy is not None else None
     )
     metrics = res.to_dict()
-    uv = fg.uv_power_map(layout, lam, scan_max=scan_max)
+    # a little beyond the sidelobe disc, so that its edge shows on the map
+    uv = fg.uv_power_map(layout, lam, 1.04 * (1.0 + math.sin(scan_max)), scan_max=scan_max)
     table = fg.scan_psl_table(layout, lam, scan_max, uv_map=uv)
     filled = Layout(site_xy[:, 0], site_xy[:, 1]) if site_xy is not None and len(site_xy) else None
     base_hist = _get(baseline, "history")
