@@ -33,6 +33,8 @@ class DesignResult:
     layout: Layout
     metrics: dict
     files: list
+    problem: object = None
+    sites: object = None
 
 
 def prepare_output(out_dir) -> Path:
@@ -163,7 +165,7 @@ def run_design(
     files = [out / "layout.csv", out / "layout.json"]
     write_layout_csv(files[0], layout)
     atomic_write_json(files[1], meta)
-    result = DesignResult(spec, search, layout, meta, files)
+    result = DesignResult(spec, search, layout, meta, files, problem, sites)
     if extra_outputs is not None:
         files.extend(extra_outputs(result, out))
     return result

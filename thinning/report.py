@@ -51,6 +51,7 @@ SECTIONS: tuple[tuple[str, str], ...] = (
     ("pattern", "Pattern in u-v"),
     ("cuts", "Principal-plane cuts"),
     ("scan", "Worst sidelobe across the scan cone"),
+    ("stress", "What the built array will do"),
     ("convergence", "Convergence"),
     ("comparison", "Comparison with best-of-random"),
     ("cautions", "Cautions"),
@@ -338,6 +339,100 @@ def _provenance(prov: Mapping) -> str:
     return '<table class="provenance"><tbody>' + "".join(rows) + "</tbody></table>"
 
 
+def _table(rows, columns) -> str:
+    head = "".join(f"<th>{_e(label)}</th>" for _, label, _ in columns)
+    body = []
+    for r in rows:
+        cells = []
+        for key, _, fmt in columns:
+            v = r.get(key)
+            if isinstance(v, bool):
+                cells.append(f"<td>{'yes' if v else 'no'}</td>")
+            elif fmt and _finite(v):
+                cells.append(f'<td class="num">{_e(format(float(v), fmt).replace("-", "−"))}</td>')
+            else:
+                cells.append(f"<td>{_e('—' if v is None else v)}</td>")
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    return f'<table class="grid"><tr>{head}</tr>{"".join(body)}</table>'
+
+
+def _stress(stress) -> str:
+    """The scan, band-edge and Monte Carlo tables of :func:`thinning.stress.stress_layout`."""
+    if stress is None:
+        return '<p class="missing">Not run (give the error model to analyse the built array).</p>'
+    parts = [
+        "<h3>Scanned beams (phase steering at the design frequency)</h3>",
+        _table(
+            stress["scan"],
+            [
+                ("theta_deg", "θ₀ [°]", ".1f"),
+                ("phi_deg", "φ₀ [°]", ".0f"),
+                ("psl_db", "PSL [dB]", ".2f"),
+                ("gain_dbi", "gain [dBi]", ".2f"),
+                ("scan_loss_db", "scan loss [dB]", ".2f"),
+                ("hpbw_deg", "HPBW [°]", ".3f"),
+                ("hpbw_broadening", "broadening", ".4f"),
+                ("cos_law", "1/cos θ₀", ".4f"),
+            ],
+        ),
+        '<p class="note">Gain includes the element pattern (cos θ₀ scan loss for q = 1); '
+        "the beamwidth broadens about as 1/cos θ₀.</p>",
+    ]
+    if stress.get("band"):
+        parts += [
+            f"<h3>Band edges ({_e(stress['band'][0]['steering'])} steering)</h3>",
+            _table(
+                stress["band"],
+                [
+                    ("frequency_ghz", "f [GHz]", ".4f"),
+                    ("theta_command_deg", "commanded θ [°]", ".2f"),
+                    ("theta_beam_deg", "beam θ [°]", ".2f"),
+                    ("squint_deg", "squint [°]", ".2f"),
+                    ("psl_db", "PSL [dB]", ".2f"),
+                    ("grating_lobe", "grating lobe", None),
+                ],
+            ),
+        ]
+    mc = stress.get("monte_carlo")
+    if mc:
+        mo = mc["model"]
+        parts += [
+            f"<h3>Random errors, {mc['trials']} trials</h3>",
+            f"<p>Amplitude {_num(mo['amplitude_error_db'])} dB rms, phase "
+            f"{_num(mo['phase_error_deg'], 1)}° rms, "
+            f"{_e(mo['phase_bits'] or 'continuous')} phase bits, {_e(mo['failures'])} failed "
+            "elements.</p>",
+            _table(
+                [
+                    {
+                        "what": "PSL [dB]",
+                        "nominal": stress["psl_db"]["nominal"],
+                        "median": stress["psl_db"]["median"],
+                        "p90": stress["psl_db"]["p90"],
+                        "floor": None,
+                    },
+                    {
+                        "what": "ASL [dB]",
+                        "nominal": stress["asl_db"]["nominal"],
+                        "median": stress["asl_db"]["mean"],
+                        "p90": None,
+                        "floor": stress["expected_asl_db"],
+                    },
+                ],
+                [
+                    ("what", "", None),
+                    ("nominal", "nominal", ".2f"),
+                    ("median", "median PSL / mean ASL", ".2f"),
+                    ("p90", "90th percentile", ".2f"),
+                    ("floor", "nominal + published floor", ".2f"),
+                ],
+            ),
+            '<p class="note">Floor: ASL ≈ [(1 − P) + δ² + P(φ² + π²/(3·2^{2B}))]/(P·η·N) '
+            "(references.md rows 11–12).</p>",
+        ]
+    return "".join(parts)
+
+
 def build_report(
     path,
     *,
@@ -351,6 +446,7 @@ def build_report(
     cautions: Sequence[str] = CAUTIONS,
     title: str = "Thinned array design report",
     scan_table: dict | None = None,
+    stress: dict | None = None,
 ) -> Path:
     """Write the report as one self-contained HTML file.
 
@@ -379,6 +475,8 @@ def build_report(
     title : str
     scan_table : dict, optional
         From :func:`thinning.figures.scan_psl_table`.
+    stress : dict, optional
+        From :func:`thinning.stress.stress_layout`; None prints "not run".
 
     Returns
     -------
@@ -419,6 +517,7 @@ def build_report(
         "cuts": _img(figures.get("cuts"), "Principal-plane cuts"),
         "scan": _img(figures.get("scan_psl"), "Worst sidelobe against scan angle")
         + _scan_table(scan_table),
+        "stress": _stress(stress),
         "convergence": conv,
         "comparison": _comparison(m, history, baseline, prov, figures.get("comparison")),
         "cautions": '<ul class="cautions">'
@@ -458,6 +557,8 @@ def report_for_layout(
     provenance: Mapping | None = None,
     layout_png: bytes | None = None,
     title: str = "Thinned array design report",
+    metrics: Mapping | None = None,
+    stress: dict | None = None,
 ) -> Path:
     """Score a layout, draw every figure and write the HTML report.
 
@@ -478,6 +579,8 @@ def report_for_layout(
     provenance : dict, optional
     layout_png : bytes, optional   a drawing to use instead of the built-in one
     title : str
+    metrics : dict, optional   the layout's figures if already computed (else scored here)
+    stress : dict, optional    :func:`thinning.stress.stress_layout` output
 
     Returns
     -------
@@ -499,10 +602,11 @@ def report_for_layout(
     site_xy = None
     if sites is not None:
         site_xy = np.asarray(sites, dtype=float).reshape(-1, 2)
-    res = score_layout(
-        layout, frequency_hz, scan_max, q, sites=len(site_xy) if site_xy is not None else None
-    )
-    metrics = res.to_dict()
+    if metrics is None:
+        metrics = score_layout(
+            layout, frequency_hz, scan_max, q, sites=len(site_xy) if site_xy is not None else None
+        ).to_dict()
+    metrics = dict(metrics)
     # a little beyond the sidelobe disc, so that its edge shows on the map
     uv = fg.uv_power_map(layout, lam, 1.04 * (1.0 + math.sin(scan_max)), scan_max=scan_max)
     table = fg.scan_psl_table(layout, lam, scan_max, uv_map=uv)
@@ -533,4 +637,5 @@ def report_for_layout(
         provenance=provenance,
         title=title,
         scan_table=table,
+        stress=stress,
     )

@@ -67,6 +67,16 @@ KEYS = {
     | METHOD_OPTIONS,
     "constraints": {"symmetry", "pin_outer_ring", "pin_ids", "forbid_ids", "pin_mm", "forbid_mm"},
     "requirements": {"psl_db", "asl_db"},
+    "stress": {
+        "band_ghz",
+        "steering",
+        "amplitude_error_db",
+        "phase_error_deg",
+        "phase_bits",
+        "failures",
+        "trials",
+        "seed",
+    },
     "robust": {
         "amplitude_error_db",
         "phase_error_deg",
@@ -415,6 +425,24 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
             output["footprint_mm"], src, "output.footprint_mm", lo=0, lo_open=True
         )
 
+    st = raw.get("stress", {})
+    for k, v in st.items():
+        if k == "steering":
+            _choice(v, ("phase", "delay"), src, "stress.steering")
+        elif k == "band_ghz":
+            if not (isinstance(v, list) and len(v) == 2):
+                raise SpecError(f"{where(src, 'stress.band_ghz')}expected [low, high] in GHz")
+            lo, hi = (_number(x, src, "stress.band_ghz", lo=0, lo_open=True) for x in v)
+            if not lo < hi:
+                raise SpecError(f"{where(src, 'stress.band_ghz')}{v!r}: low must be below high")
+        else:
+            _number(
+                v,
+                src,
+                f"stress.{k}",
+                lo=0,
+                integer=k in ("phase_bits", "failures", "trials", "seed"),
+            )
     robust, rob = None, raw.get("robust")
     r_trials, r_pct, r_seed = 16, 90.0, 0
     if rob is not None:

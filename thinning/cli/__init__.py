@@ -31,7 +31,7 @@ def cli():
 def _register():
     from . import score  # noqa: F401  (each module adds its command to `cli`)
 
-    for name in ("design", "export", "report", "sweep", "stress"):
+    for name in ("design", "export", "sweep", "stress"):
         try:
             __import__(f"{__name__}.{name}")
         except ModuleNotFoundError as exc:

@@ -1,0 +1,231 @@
+"""``thinning export`` and ``thinning report``: deliverables for any layout file."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from . import cli
+from ._options import check_angle, check_exponent, check_frequency
+
+__all__ = ["export", "report"]
+
+
+def _aperture_from(spec_path):
+    if spec_path is None:
+        return None, None, None, ""
+    from ..spec import load_spec
+
+    spec = load_spec(spec_path)
+    sites = spec.sites()
+    return spec.aperture, sites, spec.lattice, str(spec.raw.get("name", Path(spec.source).stem))
+
+
+@cli.command()
+@click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
+@click.option(
+    "--to",
+    "fmt",
+    type=click.Choice(["dxf", "svg", "png", "json"]),
+    required=True,
+    help="Output format.",
+)
+@click.option(
+    "--out",
+    "out_path",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="Output file (default: the layout file with the new suffix).",
+)
+@click.option(
+    "--spec",
+    "spec_path",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="Spec whose outline, holes and clearance to draw with the elements.",
+)
+@click.option(
+    "--footprint-mm",
+    type=click.FloatRange(min=0, min_open=True),
+    default=None,
+    help="Element marker diameter [mm] (default 0.8 x the closest spacing).",
+)
+@click.option(
+    "--freq-ghz",
+    type=float,
+    default=None,
+    callback=check_frequency,
+    help="With --to json: add the layout's figures at this frequency [GHz].",
+)
+@click.option("--scan-max-deg", type=float, default=0.0, callback=check_angle)
+@click.option("--element-exponent", type=float, default=1.0, callback=check_exponent)
+def export(
+    layout_csv, fmt, out_path, spec_path, footprint_mm, freq_ghz, scan_max_deg, element_exponent
+):
+    """Write a layout as a DXF or SVG/PNG drawing, or as JSON."""
+    from ..io.layout_csv import read_layout_csv
+
+    layout = read_layout_csv(layout_csv)
+    aperture, sites, lattice, name = _aperture_from(spec_path)
+    out = Path(out_path) if out_path else Path(layout_csv).with_suffix(f".{fmt}")
+    if not out.parent.is_dir():
+        from ..errors import OutputError
+
+        raise OutputError(f"{out}: cannot write: folder '{out.parent}' does not exist")
+    if fmt == "json":
+        from ..io.atomic import atomic_write_json
+
+        doc = {
+            "elements": [
+                {
+                    "id": i,
+                    "x_mm": round(float(x) * 1e3, 6),
+                    "y_mm": round(float(y) * 1e3, 6),
+                    **({"amplitude": float(a)} if layout.amplitude is not None else {}),
+                }
+                for i, x, y, a in zip(
+                    layout.element_ids, layout.x, layout.y, layout.weights, strict=True
+                )
+            ]
+        }
+        if freq_ghz is not None:
+            from ..score import score_layout
+            from ..units import deg_to_rad, ghz_to_hz
+
+            doc["metrics"] = score_layout(
+                layout,
+                ghz_to_hz(freq_ghz),
+                deg_to_rad(scan_max_deg),
+                element_exponent,
+                sites=None if sites is None else len(sites),
+            ).to_dict()
+        atomic_write_json(out, doc)
+        files = [out]
+    else:
+        from ..deliver import write_drawings
+
+        files = write_drawings(
+            out.parent,
+            layout,
+            aperture,
+            frequency_hz=None if freq_ghz is None else freq_ghz * 1e9,
+            lattice=lattice,
+            name=name,
+            sites=sites,
+            footprint_mm=footprint_mm,
+            formats=(fmt,),
+            stem=out.stem,
+        )
+    for f in files:
+        click.echo(f"wrote {f}")
+
+
+def _band(ctx, param, value):
+    if value is None:
+        return None
+    try:
+        lo, hi = (float(v) for v in value.split(":"))
+    except ValueError:
+        raise click.BadParameter(f"{value!r}: expected LO:HI in GHz") from None
+    if not 0 < lo < hi:
+        raise click.BadParameter(f"{value!r}: expected 0 < LO < HI")
+    return lo, hi
+
+
+@cli.command()
+@click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
+@click.option(
+    "--freq-ghz",
+    type=float,
+    required=True,
+    callback=check_frequency,
+    help="Design frequency [GHz].",
+)
+@click.option(
+    "--scan-max-deg",
+    type=float,
+    default=0.0,
+    show_default=True,
+    callback=check_angle,
+    help="Half-angle of the scan cone [deg].",
+)
+@click.option(
+    "--element-exponent", type=float, default=1.0, show_default=True, callback=check_exponent
+)
+@click.option(
+    "--out",
+    "out_path",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="The HTML file (default: report.html beside the layout file).",
+)
+@click.option(
+    "--spec",
+    "spec_path",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="Spec of the panel: outline for the drawing, sites for the fill.",
+)
+@click.option("--band-ghz", callback=_band, default=None, metavar="LO:HI")
+@click.option("--steering", type=click.Choice(["phase", "delay"]), default="phase")
+@click.option("--amplitude-error-db", type=click.FloatRange(0, 10), default=0.0)
+@click.option("--phase-error-deg", type=click.FloatRange(0, 180), default=0.0)
+@click.option("--phase-bits", type=click.IntRange(1, 16), default=None)
+@click.option("--failures", type=click.IntRange(min=0), default=0)
+@click.option("--trials", type=click.IntRange(min=1), default=100, show_default=True)
+def report(
+    layout_csv,
+    freq_ghz,
+    scan_max_deg,
+    element_exponent,
+    out_path,
+    spec_path,
+    band_ghz,
+    steering,
+    amplitude_error_db,
+    phase_error_deg,
+    phase_bits,
+    failures,
+    trials,
+):
+    """Write a self-contained HTML design-review report for a layout file."""
+    from ..deliver import default_stress, write_report
+    from ..errors import OutputError
+    from ..io.layout_csv import read_layout_csv
+    from ..units import deg_to_rad, ghz_to_hz
+
+    layout = read_layout_csv(layout_csv)
+    aperture, sites, _, name = _aperture_from(spec_path)
+    out = Path(out_path) if out_path else Path(layout_csv).parent / "report.html"
+    if not out.parent.is_dir():
+        raise OutputError(f"{out}: cannot write: folder '{out.parent}' does not exist")
+    f, scan = ghz_to_hz(freq_ghz), deg_to_rad(scan_max_deg)
+    cfg = {
+        "amplitude_error_db": amplitude_error_db,
+        "phase_error_deg": phase_error_deg,
+        "phase_bits": phase_bits,
+        "failures": failures,
+        "trials": trials,
+        "steering": steering,
+    }
+    if band_ghz is not None:
+        cfg["band_ghz"] = list(band_ghz)
+    if failures >= len(layout):
+        from ..errors import LayoutError
+
+        raise LayoutError(f"--failures {failures}: the layout has only {len(layout)} elements")
+    stress = default_stress(layout, f, scan, element_exponent, cfg)
+    path = write_report(
+        out,
+        layout,
+        f,
+        scan,
+        element_exponent,
+        aperture=aperture,
+        sites=sites,
+        stress=stress,
+        provenance={"layout_file": str(layout_csv)},
+        title=f"{name or Path(layout_csv).stem}: array layout report",
+    )
+    click.echo(f"wrote {path}")

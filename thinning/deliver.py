@@ -1,0 +1,209 @@
+"""The files a design hands over: drawings for the mechanical designers and the review report.
+
+``thinning design`` calls :func:`write_deliverables` after it has written ``layout.csv`` and
+``layout.json``; ``thinning export`` and ``thinning report`` call the pieces for any layout
+file. matplotlib and ezdxf are imported here, never at package import.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["write_deliverables", "write_drawings", "write_report", "default_stress"]
+
+
+def write_drawings(
+    out: Path,
+    layout,
+    aperture=None,
+    *,
+    frequency_hz=None,
+    lattice=None,
+    name="",
+    sites=None,
+    footprint_mm=None,
+    formats=("dxf", "svg", "png"),
+    stem="layout",
+) -> list[Path]:
+    """layout.dxf / layout.svg / layout.png (whichever ``formats`` asks for)."""
+    from .drawing import layout_title, write_layout_drawings
+    from .io.dxf import write_layout_dxf
+
+    today = _dt.date.today()
+    title = layout_title(layout, frequency_hz=frequency_hz, lattice=lattice, name=name)
+    files = []
+    if "dxf" in formats:
+        files.append(
+            write_layout_dxf(
+                out / f"{stem}.dxf",
+                layout,
+                aperture,
+                footprint_mm=footprint_mm,
+                title=f"{title}, {today.isoformat()}",
+            )
+        )
+    figs = [f for f in formats if f in ("svg", "png")]
+    if figs:
+        files += write_layout_drawings(
+            out,
+            layout,
+            aperture,
+            stem=stem,
+            footprint_mm=footprint_mm,
+            title=title,
+            sites=sites,
+            formats=figs,
+        )
+    return files
+
+
+def default_stress(layout, frequency, scan_max, q, spec_stress: dict | None, robust=None):
+    """The built-array analysis for the report: the scan table always; band edges and Monte
+    Carlo errors when the spec states them ([stress] or [robust])."""
+    from .stress import ErrorModel, stress_layout
+
+    cfg = dict(spec_stress or {})
+    band = cfg.get("band_ghz")
+    model = robust or ErrorModel(
+        cfg.get("amplitude_error_db", 0.0),
+        cfg.get("phase_error_deg", 0.0),
+        cfg.get("phase_bits"),
+        cfg.get("failures", 0),
+    )
+    if layout.grid_fit() is None:
+        return None
+    return stress_layout(
+        layout,
+        frequency,
+        scan_max,
+        q,
+        band=None if band is None else (band[0] * 1e9, band[1] * 1e9),
+        steering=cfg.get("steering", "phase"),
+        model=model,
+        trials=int(cfg.get("trials", 100)),
+        seed=int(cfg.get("seed", 0)),
+    )
+
+
+def write_report(
+    path: Path,
+    layout,
+    frequency_hz,
+    scan_max,
+    q,
+    *,
+    aperture=None,
+    sites=None,
+    history=None,
+    baseline=None,
+    provenance=None,
+    layout_png=None,
+    metrics=None,
+    stress=None,
+    title="Thinned array design report",
+) -> Path:
+    from .report import report_for_layout
+
+    xy = None if sites is None else np.column_stack([sites.x, sites.y])
+    return report_for_layout(
+        path,
+        layout,
+        frequency_hz,
+        scan_max,
+        q,
+        aperture=aperture,
+        sites=xy,
+        history=history,
+        baseline=baseline,
+        provenance=provenance,
+        layout_png=layout_png,
+        metrics=metrics,
+        stress=stress,
+        title=title,
+    )
+
+
+def write_deliverables(result, out: Path) -> list[Path]:
+    """Drawings, the best-of-random baseline and report.html for a finished design."""
+    from .search import run_method
+
+    spec = result.spec
+    fp = spec.output.get("footprint_mm")
+    name = str(spec.raw.get("name", Path(spec.source).stem))
+    files = write_drawings(
+        out,
+        result.layout,
+        spec.aperture,
+        frequency_hz=spec.frequency,
+        lattice=spec.lattice,
+        name=name,
+        sites=result.sites,
+        footprint_mm=fp,
+    )
+    baseline = None
+    s = result.search
+    if spec.method != "random" and s.evaluations > 0:
+        # best of random draws at the same number of evaluations, for the comparison
+        baseline = run_method(
+            result.problem,
+            "random",
+            spec.seed,
+            {},
+            max_evaluations=s.evaluations,
+            time_limit_s=max(1.0, 1.5 * s.runtime_s),
+        )
+        result.metrics["baseline_random"] = {
+            "psl_db": baseline.psl_db,
+            "asl_db": baseline.asl_db,
+            "evaluations": baseline.evaluations,
+            "runtime_s": round(baseline.runtime_s, 3),
+        }
+    stress = default_stress(
+        result.layout,
+        spec.frequency,
+        spec.scan_max,
+        spec.element_exponent,
+        spec.raw.get("stress"),
+        spec.robust,
+    )
+    png = (out / "layout.png").read_bytes() if (out / "layout.png").exists() else None
+    m = result.metrics
+    prov = {
+        k: m.get(k)
+        for k in (
+            "version",
+            "method",
+            "seed",
+            "evaluations",
+            "runtime_s",
+            "stopped_by",
+            "spec_file",
+        )
+    }
+    prov["spec_digest"] = m.get("spec_digest_sha256")
+    files.append(
+        write_report(
+            out / "report.html",
+            result.layout,
+            spec.frequency,
+            spec.scan_max,
+            spec.element_exponent,
+            aperture=spec.aperture,
+            sites=result.sites,
+            history=s.history,
+            baseline=baseline,
+            provenance=prov,
+            layout_png=png,
+            metrics=m,
+            stress=stress,
+            title=f"{name}: thinned array design report",
+        )
+    )
+    if baseline is not None:  # layout.json gains the baseline figures
+        from .io.atomic import atomic_write_json
+
+        atomic_write_json(out / "layout.json", result.metrics)
+    return files
