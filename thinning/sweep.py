@@ -1,0 +1,461 @@
+r"""Compare thinning densities: run one spec at several element budgets.
+
+For every budget N the spec's method runs exactly as ``thinning design`` would (same seed),
+and its layout goes into a sub-folder ``nNNNNN/``. ``sweep.csv`` collects the figures, one row
+per budget, with the theory beside them:
+
+* the expected ASL of random thinning (references.md row 5), exact for N of M sites and
+  including the filled aperture's own sidelobes;
+* Steinberg's median peak sidelobe of a random array (references.md row 6; Steinberg, IEEE TAP
+  20(2), 1972, form from memory): with n_s independent sidelobe samples, each exponentially
+  distributed about the mean level ASL, the peak's distribution is
+  :math:`P(\mathrm{peak} \le r) \approx (1 - e^{-r/\mathrm{ASL}})^{n_s}` and its median is
+  :math:`\mathrm{ASL}\cdot\ln(1/(1 - 2^{-1/n_s})) \approx \mathrm{ASL}\cdot\ln(n_s/\ln 2)`;
+  n_s is the area of the sidelobe region in u-v divided by the area of one beam
+  ((λ/L)² per resolution cell, common practice);
+* the filled aperture's own PSL and ASL;
+* the cell-gain rule for the directivity.
+
+A rerun into the same folder reuses every budget whose ``layout.json`` was made from the same
+spec (digest) with the same method and seed, so an interrupted sweep resumes where it stopped
+and a finished one gives the same ``sweep.csv``.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .design import layout_metadata, prepare_output
+from .errors import SpecError
+from .io.atomic import atomic_write, atomic_write_json
+from .io.layout_csv import write_layout_csv
+from .layout import Layout
+from .metrics import expected_asl_random
+from .score import score_layout
+from .search import run_method
+from .spec import Spec, load_spec
+from .units import to_db
+
+__all__ = [
+    "SWEEP_COLUMNS",
+    "parse_budgets",
+    "steinberg_median_peak",
+    "independent_samples",
+    "run_sweep",
+    "SweepResult",
+]
+
+SWEEP_COLUMNS = [
+    "elements",
+    "fill",
+    "psl_db",
+    "asl_db",
+    "expected_asl_db",
+    "steinberg_median_psl_db",
+    "directivity_dbi",
+    "pi_n_dbi",
+    "directivity_minus_pi_n_db",
+    "hpbw_x_deg",
+    "hpbw_y_deg",
+    "grating_lobes",
+    "meets_requirement",
+    "evaluations",
+    "runtime_s",
+    "stopped_by",
+    "folder",
+]
+
+
+def parse_budgets(elements: str | None, fill: str | None, sites: int) -> list[int]:
+    """Budgets from ``--elements LIST|START:STOP:STEP`` and/or ``--fill LIST``.
+
+    STOP is inclusive. Budgets are sorted, duplicates removed; each must lie in 2 … M.
+    """
+    out: set[int] = set()
+    if elements:
+        text = elements.strip()
+        try:
+            if ":" in text:
+                parts = [int(p) for p in text.split(":")]
+                if len(parts) != 3 or parts[2] <= 0:
+                    raise ValueError
+                start, stop, step = parts
+                out.update(range(start, stop + 1, step))
+            else:
+                out.update(int(p) for p in text.split(",") if p.strip())
+        except ValueError:
+            raise SpecError(
+                f"--elements {elements!r}: expected a list like 100,150,200 or "
+                "START:STOP:STEP like 100:300:50"
+            ) from None
+    if fill:
+        try:
+            fills = [float(p) for p in fill.split(",") if p.strip()]
+        except ValueError:
+            raise SpecError(f"--fill {fill!r}: expected fractions like 0.3,0.5") from None
+        for f in fills:
+            if not 0 < f <= 1:
+                raise SpecError(f"--fill {f!r}: a fill fraction lies in (0, 1]")
+            out.add(int(round(f * sites)))
+    if not out:
+        raise SpecError("give the budgets with --elements and/or --fill")
+    bad = [n for n in sorted(out) if not 2 <= n <= sites]
+    if bad:
+        raise SpecError(f"--elements {bad[0]}: budgets must lie between 2 and the {sites} sites")
+    return sorted(out)
+
+
+def independent_samples(
+    sites_x, sites_y, wavelength: float, scan_max: float, linear: bool
+) -> float:
+    """Number of independent sidelobe samples n_s of an aperture (common practice estimate).
+
+    The sidelobe region (radius 1 + sin θmax in u-v) divided by the resolution cell of the
+    aperture: (λ/Lx)·(λ/Ly) in 2-D, λ/L in 1-D, with L the extent plus one pitch.
+    """
+    radius = 1 + math.sin(scan_max)
+    xs = np.unique(np.round(np.asarray(sites_x), 9))
+    lx = float(np.ptp(xs)) + (float(np.min(np.diff(xs))) if xs.size > 1 else wavelength / 2)
+    if linear:
+        return max(1.0, 2 * radius * lx / wavelength)
+    ys = np.unique(np.round(np.asarray(sites_y), 9))
+    ly = float(np.ptp(ys)) + (float(np.min(np.diff(ys))) if ys.size > 1 else wavelength / 2)
+    return max(1.0, math.pi * radius**2 * lx * ly / wavelength**2)
+
+
+def steinberg_median_peak(asl: float, n_s: float) -> float:
+    """Median peak of n_s independent exponential sidelobe samples of mean ``asl``  [1].
+
+    .. math::  r_{1/2} = \\mathrm{ASL}\\cdot\\ln\\frac{1}{1 - 2^{-1/n_s}}
+               \\approx \\mathrm{ASL}\\cdot\\ln(n_s/\\ln 2)
+
+    (Steinberg 1972, references.md row 6; the exact median of the stated distribution).
+    """
+    return asl * -math.log(1 - 2 ** (-1 / n_s))
+
+
+@dataclass
+class SweepResult:
+    rows: list
+    folder: Path
+    smallest_meeting: dict | None
+    filled: dict
+    reused: list
+    files: list
+    requirement: float | None = None
+    spec: Spec | None = None
+    independent_samples: float = 1.0
+    sites: int = 0
+
+
+def _budget_folder(out: Path, n: int) -> Path:
+    return out / f"n{n:06d}"
+
+
+def _done(folder: Path, spec: Spec, n: int) -> dict | None:
+    """The layout.json of a finished budget made from this spec, method and seed, or None."""
+    try:
+        meta = json.loads((folder / "layout.json").read_text())
+    except (OSError, ValueError):
+        return None
+    if not (folder / "layout.csv").is_file():
+        return None
+    same = (
+        meta.get("spec_digest_sha256") == spec.digest
+        and meta.get("method") == spec.method
+        and meta.get("seed") == spec.seed
+        and meta.get("elements") == n
+    )
+    return meta if same else None
+
+
+def _run_budget(spec_path: str, n: int, folder: str) -> dict:
+    """One budget (runs in a worker process): design, score, write the sub-folder."""
+    spec = load_spec(spec_path)
+    spec.budget_elements, spec.budget_fill = n, None
+    sites = spec.sites()
+    problem = spec.problem(sites)
+    search = run_method(
+        problem,
+        spec.method,
+        spec.seed,
+        spec.options,
+        max_evaluations=spec.max_evaluations,
+        time_limit_s=spec.time_limit_s,
+        workers=1,
+    )
+    layout = Layout.from_sites(sites, search.mask)
+    metrics = score_layout(
+        layout,
+        spec.frequency,
+        spec.scan_max,
+        spec.element_exponent,
+        sites=len(sites),
+        oversampling=spec.oversampling,
+    ).to_dict()
+    meta = layout_metadata(spec, search, metrics, len(sites), problem)
+    out = Path(folder)
+    out.mkdir(parents=True, exist_ok=True)
+    write_layout_csv(out / "layout.csv", layout)
+    atomic_write_json(out / "layout.json", meta)
+    return meta
+
+
+def _filled_figures(spec: Spec, sites) -> dict:
+    lay = Layout.from_sites(sites)
+    r = score_layout(
+        lay,
+        spec.frequency,
+        spec.scan_max,
+        spec.element_exponent,
+        sites=len(sites),
+        oversampling=spec.oversampling,
+    )
+    return {
+        "psl_db": r.psl_db,
+        "asl_db": r.asl_db,
+        "directivity_dbi": r.directivity_dbi,
+        "elements": len(sites),
+    }
+
+
+def run_sweep(
+    spec_path,
+    budgets_elements: str | None,
+    budgets_fill: str | None,
+    out_dir,
+    workers: int = 1,
+    progress=None,
+) -> SweepResult:
+    """Run the spec at every budget and write sweep.csv (and the per-budget folders)."""
+    spec = load_spec(spec_path)
+    sites = spec.sites()
+    m = len(sites)
+    budgets = parse_budgets(budgets_elements, budgets_fill, m)
+    for n in budgets:  # every budget must be feasible (symmetry, pins) before any output
+        s2 = load_spec(spec_path)
+        s2.budget_elements, s2.budget_fill = n, None
+        try:
+            s2.problem(sites)
+        except SpecError as exc:
+            raise SpecError(f"{exc} (in the sweep at {n} elements)") from None
+    out = prepare_output(out_dir)
+    metas: dict[int, dict] = {}
+    reused = []
+    todo = []
+    for n in budgets:
+        meta = _done(_budget_folder(out, n), spec, n)
+        if meta is not None:
+            metas[n] = meta
+            reused.append(n)
+        else:
+            todo.append(n)
+    if todo:
+        if workers > 1 and len(todo) > 1:
+            with ProcessPoolExecutor(min(workers, len(todo))) as pool:
+                futs = {
+                    n: pool.submit(_run_budget, str(spec_path), n, str(_budget_folder(out, n)))
+                    for n in todo
+                }
+                for n in todo:
+                    metas[n] = futs[n].result()
+                    if progress:
+                        progress(n, metas[n])
+        else:
+            for n in todo:
+                metas[n] = _run_budget(str(spec_path), n, str(_budget_folder(out, n)))
+                if progress:
+                    progress(n, metas[n])
+    filled = _filled_figures(spec, sites)
+    lin = spec.lattice.kind == "linear"
+    n_s = independent_samples(sites.x, sites.y, spec.wavelength, spec.scan_max, lin)
+    req = spec.requirements.get("psl_db")
+    filled_asl = 10 ** (filled["asl_db"] / 10)
+    rows = []
+    for n in budgets:
+        meta = metas[n]
+        asl_rand = expected_asl_random(n, m, filled_asl)
+        rows.append(
+            {
+                "elements": n,
+                "fill": round(n / m, 6),
+                "psl_db": meta["psl_db"],
+                "asl_db": meta["asl_db"],
+                "expected_asl_db": round(float(to_db(asl_rand)), 6),
+                "steinberg_median_psl_db": round(
+                    float(to_db(steinberg_median_peak(asl_rand, n_s))), 6
+                ),
+                "directivity_dbi": meta["directivity_dbi"],
+                "pi_n_dbi": meta["pi_n_dbi"],
+                "directivity_minus_pi_n_db": meta["directivity_minus_pi_n_db"],
+                "hpbw_x_deg": meta["hpbw_deg"][0],
+                "hpbw_y_deg": meta["hpbw_deg"][1],
+                "grating_lobes": meta["grating_lobes"],
+                "meets_requirement": "" if req is None else bool(meta["psl_db"] <= req),
+                "evaluations": meta["evaluations"],
+                "runtime_s": meta["runtime_s"],
+                "stopped_by": meta["stopped_by"],
+                "folder": _budget_folder(out, n).name,
+            }
+        )
+    smallest = None
+    if req is not None:
+        ok = [r for r in rows if r["meets_requirement"] is True]
+        smallest = min(ok, key=lambda r: r["elements"]) if ok else None
+    buf = io.StringIO()
+    w = csv.DictWriter(buf, SWEEP_COLUMNS, lineterminator="\n")
+    w.writeheader()
+    for r in rows:
+        w.writerow({k: ("" if r[k] is None else r[k]) for k in SWEEP_COLUMNS})
+    files = [out / "sweep.csv", out / "sweep.json"]
+    atomic_write(files[0], buf.getvalue())
+    atomic_write_json(
+        files[1],
+        {
+            "spec_file": Path(spec.source).name,
+            "spec_digest_sha256": spec.digest,
+            "method": spec.method,
+            "seed": spec.seed,
+            "sites": m,
+            "independent_samples": n_s,
+            "requirement_psl_db": req,
+            "smallest_meeting_requirement": None if smallest is None else smallest["elements"],
+            "filled_aperture": filled,
+            "rows": rows,
+        },
+    )
+    return SweepResult(rows, out, smallest, filled, reused, files, req, spec, n_s, m)
+
+
+def theory_curves(res: SweepResult, n_points: int = 200) -> dict:
+    """Random-thinning ASL, Steinberg's median PSL and the cell-gain rule on a fine N grid."""
+    m = res.sites
+    lo = max(2, min(r["elements"] for r in res.rows) // 2)
+    n = np.unique(np.linspace(lo, m, n_points).round().astype(int))
+    filled_asl = 10 ** (res.filled["asl_db"] / 10)
+    asl = np.array([expected_asl_random(int(k), m, filled_asl) for k in n])
+    med = np.array([steinberg_median_peak(a, res.independent_samples) for a in asl])
+    r0 = res.rows[0]
+    rule = r0["pi_n_dbi"] + 10 * np.log10(n / r0["elements"])  # the rule is linear in N
+    return {
+        "elements": n,
+        "expected_asl_db": 10 * np.log10(asl),
+        "steinberg_median_psl_db": 10 * np.log10(med),
+        "pi_n_dbi": rule,
+    }
+
+
+def sweep_figure(res: SweepResult):
+    """PSL and ASL against N with the theory curves; directivity against N with the rule."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    th = theory_curves(res)
+    n = np.array([r["elements"] for r in res.rows])
+    fig = Figure(figsize=(11.0, 4.6))
+    FigureCanvasAgg(fig)
+    a, b = fig.subplots(1, 2)
+    a.plot(n, [r["psl_db"] for r in res.rows], "o-", color="C3", label="PSL, this search")
+    a.plot(n, [r["asl_db"] for r in res.rows], "s-", color="C0", label="ASL, this search")
+    a.plot(
+        th["elements"],
+        th["steinberg_median_psl_db"],
+        "--",
+        color="C3",
+        alpha=0.7,
+        label="median PSL of random thinning (Steinberg)",
+    )
+    a.plot(
+        th["elements"],
+        th["expected_asl_db"],
+        "--",
+        color="C0",
+        alpha=0.7,
+        label="expected ASL of random thinning",
+    )
+    a.axhline(
+        res.filled["psl_db"],
+        color="0.4",
+        lw=1,
+        ls=":",
+        label=f"filled aperture PSL ({res.filled['elements']} sites)",
+    )
+    if res.requirement is not None:
+        a.axhline(res.requirement, color="k", lw=1.2, label=f"requirement {res.requirement:g} dB")
+    a.set_xlabel("active elements N")
+    a.set_ylabel("level relative to the main beam [dB]")
+    a.set_title("Sidelobes against element count")
+    a.grid(alpha=0.3)
+    a.legend(fontsize=7, loc="best")
+    b.plot(n, [r["directivity_dbi"] for r in res.rows], "o-", color="C2", label="directivity")
+    b.plot(
+        th["elements"],
+        th["pi_n_dbi"],
+        "--",
+        color="C2",
+        alpha=0.7,
+        label="cell-gain rule 4πN·A_cell/λ²",
+    )
+    b.set_xlabel("active elements N")
+    b.set_ylabel("directivity [dBi]")
+    b.set_title("Directivity against element count")
+    b.grid(alpha=0.3)
+    b.legend(fontsize=8)
+    fig.tight_layout()
+    return fig
+
+
+def write_sweep_outputs(res: SweepResult) -> list[Path]:
+    """sweep.png and the self-contained sweep.html."""
+    import base64
+    import html
+
+    buf = io.BytesIO()
+    sweep_figure(res).savefig(buf, format="png", dpi=110)
+    png = buf.getvalue()
+    files = [res.folder / "sweep.png", res.folder / "sweep.html"]
+    atomic_write(files[0], png)
+    e = html.escape
+    cols = [c for c in SWEEP_COLUMNS if c not in ("folder", "stopped_by")]
+    head = "".join(f"<th>{e(c)}</th>" for c in cols)
+    body = "".join(
+        "<tr>" + "".join(f"<td>{e(str(r[c]))}</td>" for c in cols) + "</tr>" for r in res.rows
+    )
+    if res.requirement is None:
+        answer = "No PSL requirement in the spec ([requirements] psl_db)."
+    elif res.smallest_meeting is None:
+        answer = f"No budget in this sweep meets PSL ≤ {res.requirement:g} dB."
+    else:
+        s = res.smallest_meeting
+        answer = (
+            f"The smallest budget in this sweep that meets PSL ≤ {res.requirement:g} dB is "
+            f"<b>{s['elements']} elements</b> (PSL {s['psl_db']:.2f} dB); its layout is in "
+            f"<code>{e(s['folder'])}/layout.csv</code>."
+        )
+    from .report import CAUTIONS
+
+    doc = f"""<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">
+<title>Thinning sweep</title><style>body{{font-family:system-ui,sans-serif;max-width:1100px;
+margin:auto;padding:1em}}table{{border-collapse:collapse;font-size:.85em}}td,th{{border:1px solid
+#ccc;padding:.2em .5em}}img{{max-width:100%}}</style></head><body>
+<h1>Budget against sidelobes: {e(Path(res.spec.source).name)}</h1>
+<h2 id="answer">Answer</h2><p>{answer}</p>
+<h2 id="figure">Trade</h2><img alt="sweep" src="data:image/png;base64,{base64.b64encode(png).decode()}">
+<p>Theory: expected ASL of random thinning N of M = {res.sites} sites (with the filled aperture's
+own sidelobes); Steinberg's median peak of random arrays with n_s ≈ {res.independent_samples:.0f}
+independent sidelobe samples; the filled aperture's PSL; the cell-gain rule.</p>
+<h2 id="table">Budgets</h2><table><tr>{head}</tr>{body}</table>
+<h2 id="cautions">Cautions</h2><ul>{"".join(f"<li>{e(c)}</li>" for c in CAUTIONS)}</ul>
+<h2 id="provenance">Provenance</h2><p>method {e(res.spec.method)}, seed {res.spec.seed}, spec
+digest {e(res.spec.digest)}</p></body></html>
+"""
+    atomic_write(files[1], doc)
+    return files
