@@ -442,13 +442,15 @@ def write_sweep_outputs(res: SweepResult) -> list[Path]:
         )
     from .report import CAUTIONS
 
+    b64 = base64.b64encode(png).decode()
+
     doc = f"""<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">
 <title>Thinning sweep</title><style>body{{font-family:system-ui,sans-serif;max-width:1100px;
 margin:auto;padding:1em}}table{{border-collapse:collapse;font-size:.85em}}td,th{{border:1px solid
 #ccc;padding:.2em .5em}}img{{max-width:100%}}</style></head><body>
 <h1>Budget against sidelobes: {e(Path(res.spec.source).name)}</h1>
 <h2 id="answer">Answer</h2><p>{answer}</p>
-<h2 id="figure">Trade</h2><img alt="sweep" src="data:image/png;base64,{base64.b64encode(png).decode()}">
+<h2 id="figure">Trade</h2><img alt="sweep" src="data:image/png;base64,{b64}">
 <p>Theory: expected ASL of random thinning N of M = {res.sites} sites (with the filled aperture's
 own sidelobes); Steinberg's median peak of random arrays with n_s ≈ {res.independent_samples:.0f}
 independent sidelobe samples; the filled aperture's PSL; the cell-gain rule.</p>
