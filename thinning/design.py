@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .errors import OutputError
+from .errors import OutputError, SpecError
 from .io.atomic import atomic_write_json
 from .io.layout_csv import write_layout_csv
 from .layout import Layout
@@ -135,6 +135,11 @@ def run_design(
     extra_outputs : callable(DesignResult, Path) -> list of Path, optional
         Writes further files (drawings, report) after the layout files.
     """
+    if spec.method == "pareto":
+        raise SpecError(
+            f"{spec.source}: search.method 'pareto' gives a front of budgets, not one "
+            "layout: run it with thinning sweep"
+        )
     sites = spec.sites()
     problem = spec.problem(sites)  # every input problem is raised before any output exists
     out = prepare_output(out_dir)

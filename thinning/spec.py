@@ -54,6 +54,7 @@ KEYS = {
     "budget": {"elements", "fill"},
     "scan": {"max_deg"},
     "search": {
+        "pareto_population",
         "method",
         "seed",
         "effort",
@@ -356,7 +357,10 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         fill = _number(fill, src, "budget.fill", lo=0, hi=1, lo_open=True)
 
     method = _choice(
-        _get(raw, "search", "method", src, default="genetic"), METHODS, src, "search.method"
+        _get(raw, "search", "method", src, default="genetic"),
+        (*METHODS, "pareto"),
+        src,
+        "search.method",
     )
     seed = _number(
         _get(raw, "search", "seed", src, default=0), src, "search.seed", lo=0, integer=True

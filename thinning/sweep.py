@@ -209,6 +209,94 @@ def _run_budget(spec_path: str, n: int, folder: str) -> dict:
     return meta
 
 
+def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict, list]:
+    """NSGA-II once over the budget range; each front point scored and written to pNNNNNN/.
+
+    A rerun reuses a front already written for the same spec, method, seed and range.
+    """
+    from .search.pareto import run_pareto
+
+    lo, hi = min(budgets), max(budgets)
+    try:
+        old = json.loads((out / "pareto.json").read_text())
+    except (OSError, ValueError):
+        old = None
+    if (
+        old
+        and old.get("spec_digest_sha256") == spec.digest
+        and old.get("seed") == spec.seed
+        and old.get("range") == [lo, hi]
+    ):
+        metas = {}
+        for folder in old["folders"]:
+            try:
+                meta = json.loads((out / folder / "layout.json").read_text())
+            except (OSError, ValueError):
+                break
+            meta["_folder"] = folder
+            metas[meta["elements"]] = meta
+        else:
+            return metas, sorted(metas)
+    spec.budget_elements, spec.budget_fill = hi, None
+    problem = spec.problem(sites)
+    pop = int(spec.options.get("pareto_population", 64))
+    res = run_pareto(
+        problem,
+        spec.seed,
+        lo,
+        hi,
+        population=pop,
+        max_evaluations=spec.max_evaluations,
+        time_limit_s=spec.time_limit_s,
+    )
+    metas, folders = {}, []
+    for pt in res["front"]:
+        lay = Layout.from_sites(sites, pt.mask)
+        metrics = score_layout(
+            lay,
+            spec.frequency,
+            spec.scan_max,
+            spec.element_exponent,
+            sites=len(sites),
+            oversampling=spec.oversampling,
+        ).to_dict()
+        meta = dict(metrics)
+        meta.update(
+            {
+                "method": "pareto",
+                "seed": spec.seed,
+                "evaluations": res["evaluations"],
+                "runtime_s": round(res["runtime_s"], 3),
+                "stopped_by": res["stopped_by"],
+                "spec_digest_sha256": spec.digest,
+                "search_psl_db": pt.psl_db,
+                "generations": res["generations"],
+            }
+        )
+        folder = f"p{pt.elements:06d}"
+        (out / folder).mkdir(exist_ok=True)
+        write_layout_csv(out / folder / "layout.csv", lay)
+        atomic_write_json(out / folder / "layout.json", meta)
+        meta["_folder"] = folder
+        metas[pt.elements] = meta
+        folders.append(folder)
+        if progress:
+            progress(pt.elements, meta)
+    atomic_write_json(
+        out / "pareto.json",
+        {
+            "spec_digest_sha256": spec.digest,
+            "seed": spec.seed,
+            "range": [lo, hi],
+            "folders": folders,
+            "evaluations": res["evaluations"],
+            "runtime_s": round(res["runtime_s"], 3),
+            "generations": res["generations"],
+        },
+    )
+    return metas, []
+
+
 def _filled_figures(spec: Spec, sites) -> dict:
     lay = Layout.from_sites(sites)
     r = score_layout(
@@ -251,7 +339,10 @@ def run_sweep(
     metas: dict[int, dict] = {}
     reused = []
     todo = []
-    for n in budgets:
+    if spec.method == "pareto":
+        metas, reused = _pareto_front(spec, sites, budgets, out, progress)
+        budgets = sorted(metas)
+    for n in budgets if spec.method != "pareto" else []:
         meta = _done(_budget_folder(out, n), spec, n)
         if meta is not None:
             metas[n] = meta
@@ -303,7 +394,7 @@ def run_sweep(
                 "evaluations": meta["evaluations"],
                 "runtime_s": meta["runtime_s"],
                 "stopped_by": meta["stopped_by"],
-                "folder": _budget_folder(out, n).name,
+                "folder": metas[n].get("_folder", _budget_folder(out, n).name),
             }
         )
     smallest = None
