@@ -59,6 +59,7 @@ SWEEP_COLUMNS = [
     "psl_db",
     "asl_db",
     "expected_asl_db",
+    "method_expected_asl_db",
     "steinberg_median_psl_db",
     "directivity_dbi",
     "pi_n_dbi",
@@ -202,6 +203,8 @@ def _run_budget(spec_path: str, n: int, folder: str) -> dict:
         oversampling=spec.oversampling,
     ).to_dict()
     meta = layout_metadata(spec, search, metrics, len(sites), problem)
+    if spec.method == "density":
+        meta["method_expected_asl_db"] = round(float(to_db(density_expected_asl(problem, spec))), 6)
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     write_layout_csv(out / "layout.csv", layout)
@@ -297,6 +300,23 @@ def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict
     return metas, []
 
 
+def density_expected_asl(problem, spec: Spec) -> float:
+    """Expected ASL of the density-tapered draws  [1, linear].
+
+    E|AF|² = |Σ pₙ e^{jψ}|² + Σ pₙ(1 − pₙ) (references.md row 5; Skolnik, Sherman & Ogg 1964):
+    the sidelobes of the aperture weighted by the probabilities plus Σp(1 − p)/(Σp)².
+    """
+    from .metrics import expected_asl_tapered
+    from .search.density import taper_probabilities
+
+    pg = taper_probabilities(problem, spec.options)
+    p = np.where(problem.site_gene >= 0, pg[np.maximum(problem.site_gene, 0)], 0.0)
+    p = np.where(problem.pinned_sites, 1.0, p)
+    grid = problem.sites.to_grid(p[None].astype(np.float32))
+    own = float(problem.engine.evaluate(grid, refine=False).asl[0])
+    return own + expected_asl_tapered(p)
+
+
 def _filled_figures(spec: Spec, sites) -> dict:
     lay = Layout.from_sites(sites)
     r = score_layout(
@@ -381,6 +401,9 @@ def run_sweep(
                 "psl_db": meta["psl_db"],
                 "asl_db": meta["asl_db"],
                 "expected_asl_db": round(float(to_db(asl_rand)), 6),
+                "method_expected_asl_db": meta.get(
+                    "method_expected_asl_db", round(float(to_db(asl_rand)), 6)
+                ),
                 "steinberg_median_psl_db": round(
                     float(to_db(steinberg_median_peak(asl_rand, n_s))), 6
                 ),
