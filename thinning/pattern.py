@@ -266,8 +266,8 @@ class FFTPatternEngine(_Engine):
             f = scipy.fft.rfft(a, n=pc, axis=-1, workers=self.workers)
         if pr > 1:
             f = scipy.fft.fft(f, n=pr, axis=-2, workers=self.workers)
-        p = f.real * f.real
-        p += f.imag * f.imag
+        p = np.abs(f)  # |f|² as abs then square in place: the fastest numpy route
+        p *= p
         return p.reshape(p.shape[0], -1)
 
     def exact(self, grids) -> GridExact:

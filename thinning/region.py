@@ -337,7 +337,9 @@ class SampledRegion:
         o_max = outer[np.arange(len(idx)), o_arg].astype(np.float64)
         w_max = in_win[np.arange(len(idx)), w_arg].astype(np.float64)
         weight = self.weight32 if p.dtype == np.float32 else self.weight
-        total = (p @ weight).astype(np.float64) - (removed * pw).sum(axis=1, dtype=np.float64)
+        # einsum, not BLAS: a threaded gemv is erratic on a loaded machine for this size
+        total = np.einsum("ij,j->i", p, weight).astype(np.float64)
+        total -= (removed * pw).sum(axis=1, dtype=np.float64)
         wsum = self.total_weight - removed.sum(axis=1)
         peak = out.peak[idx]
         with np.errstate(invalid="ignore", divide="ignore"):
