@@ -34,6 +34,9 @@ __all__ = ["FFTPatternEngine", "DirectPatternEngine", "Scores", "PatternDetail"]
 MARGIN_DB = (1.5, 1.0)
 #: At most this many candidate lobes are refined per pattern in a detailed evaluation.
 MAX_CANDIDATES = 64
+#: ... and in the search's fast evaluation: the highest few lobes by their parabolic peak
+#: estimate, so that a search cannot hide its worst lobe between two samples.
+FAST_CANDIDATES = 3
 
 
 @dataclass
@@ -95,14 +98,9 @@ class _Engine:
     linear: bool
     radius: float
 
-    def _refine(self, exact, red, flats, which, region=None):
-        region = self.region if region is None else region
-        uv = np.array(
-            [
-                region.alias_point(f, _mb_weight(red, region, w, f))
-                for f, w in zip(flats, which, strict=True)
-            ]
-        ).reshape(-1, 2)
+    def _refine(self, exact, red, b, flats, region):
+        """Refine candidate samples (pattern b[k], sample flats[k]) on the exact pattern."""
+        uv = region.alias_points(flats, region.removed_weight(red, b, flats))
         g = region.grid
         p, u, v = refine_peaks(
             exact,
@@ -110,42 +108,42 @@ class _Engine:
             uv[:, 1],
             (g.du, g.dv),
             region.radius,
-            which=np.asarray(which),
+            which=b,
             linear=self.linear,
             centre=region.centre,
         )
         return p, np.column_stack([u, v])
 
-    def _detail(self, exact, power1, red, region=None) -> PatternDetail:
-        region = self.region if region is None else region
-        weff = region.effective_weight(red, 0)
-        norm = power1 / red.peak[0]
+    def _scores(self, exact, power, red, region, cap) -> tuple[Scores, int]:
+        """Per pattern: the best of its refined candidate lobes (never below its samples)."""
+        n = red.peak.size
         margin = MARGIN_DB[1] if self.linear else MARGIN_DB[0]
-        cand = region.candidates(norm, weff, margin, MAX_CANDIDATES)
-        psl_s = float(red.psl[0])
-        if cand.size == 0:
-            return PatternDetail(
-                0.0, (math.nan, math.nan), 0.0, float(red.asl[0]), 0, norm, weff, region.grid
-            )
-        p, uv = self._refine(exact, red, cand, np.zeros(cand.size, dtype=np.int64), region)
-        best = int(np.argmax(p))
+        b, flats = region.candidates(power, red, margin, cap)
+        psl = red.psl.copy()
+        uv = region.alias_points(red.argmax, region.removed_weight(red, np.arange(n), red.argmax))
+        if b.size:
+            p, at = self._refine(exact, red, b, flats, region)
+            order = np.lexsort((-p, b))
+            b, p, at = b[order], p[order], at[order]
+            first = np.flatnonzero(np.r_[True, b[1:] != b[:-1]])
+            best_b, best_p = b[first], p[first]
+            up = best_p > psl[best_b]
+            psl[best_b[up]] = best_p[up]
+            uv[best_b[up]] = at[first][up]
+        return Scores(psl, red.asl.copy(), uv), int(b.size)
+
+    def _detail(self, exact, power, red, region) -> PatternDetail:
+        scores, refined = self._scores(exact, power, red, region, MAX_CANDIDATES)
         return PatternDetail(
-            psl=float(max(p[best], psl_s)),
-            psl_uv=(float(uv[best, 0]), float(uv[best, 1])),
-            psl_sampled=psl_s,
+            psl=float(scores.psl[0]),
+            psl_uv=(float(scores.psl_uv[0, 0]), float(scores.psl_uv[0, 1])),
+            psl_sampled=float(red.psl[0]),
             asl=float(red.asl[0]),
-            refined=int(cand.size),
-            power=norm,
-            sidelobe_weight=weff,
+            refined=refined,
+            power=power[0] / red.peak[0],
+            sidelobe_weight=region.effective_weight(red, 0),
             grid=region.grid,
         )
-
-
-def _mb_weight(red, region, w, flat):
-    """Weight the main beam of pattern w removed at sample ``flat`` (0 outside its window)."""
-    win = red.windows[w]
-    hit = np.flatnonzero(win.flat == flat)
-    return float(red.main_beam_weight[w][hit[0]]) if hit.size else 0.0
 
 
 class FFTPatternEngine(_Engine):
@@ -258,6 +256,18 @@ class FFTPatternEngine(_Engine):
 
     def power(self, grids) -> np.ndarray:
         """|AF|² samples of a stack of excitation grids, shape (B, nr·nc), peak at sample 0."""
+        return self.power_of(self.transform(grids))
+
+    @staticmethod
+    def power_of(f) -> np.ndarray:
+        """|f|² of transforms from :meth:`transform`, flattened to (B, nr·nc)."""
+        p = np.abs(f)  # abs then square in place: the fastest numpy route to |f|²
+        p *= p
+        return p.reshape(p.shape[0], -1)
+
+    def transform(self, grids) -> np.ndarray:
+        """The stored half of the padded transform, (B, nr, nc) complex: sample (r, c) is
+        Σ a[j, i]·exp(−2πi (r·j/Pr + c·i/Pc)), whose magnitude is |AF| at (c·du, r·dv)."""
         a = self._as_stack(grids)
         pr, pc = self.pad
         if self.full:
@@ -266,9 +276,7 @@ class FFTPatternEngine(_Engine):
             f = scipy.fft.rfft(a, n=pc, axis=-1, workers=self.workers)
         if pr > 1:
             f = scipy.fft.fft(f, n=pr, axis=-2, workers=self.workers)
-        p = np.abs(f)  # |f|² as abs then square in place: the fastest numpy route
-        p *= p
-        return p.reshape(p.shape[0], -1)
+        return f
 
     def exact(self, grids) -> GridExact:
         a = self._as_stack(grids)
@@ -281,28 +289,28 @@ class FFTPatternEngine(_Engine):
         The PSL is refined on the exact pattern around each pattern's highest sample; use
         :meth:`detail` for the full candidate search of a reported figure.
         """
+        return self.evaluate_power(grids, None, refine, region)
+
+    def evaluate_power(self, grids, power=None, refine=True, region=None) -> Scores:
+        """:meth:`evaluate` with the |AF|² samples already known (e.g. updated in place)."""
         region = self.region if region is None else region
         a = self._as_stack(grids)
-        red = region.reduce(self.power(a))
-        b = a.shape[0]
+        power = self.power(a) if power is None else power
+        red = region.reduce(power)
         if not refine:
-            uv = np.array(
-                [
-                    region.alias_point(f, _mb_weight(red, region, i, f))
-                    for i, f in enumerate(red.argmax)
-                ]
-            ).reshape(-1, 2)
+            n = red.peak.size
+            uv = region.alias_points(
+                red.argmax, region.removed_weight(red, np.arange(n), red.argmax)
+            )
             return Scores(red.psl.copy(), red.asl.copy(), uv)
-        p, uv = self._refine(self.exact(a), red, red.argmax, np.arange(b), region)
-        return Scores(np.maximum(p, red.psl), red.asl.copy(), uv)
+        return self._scores(self.exact(a), power, red, region, FAST_CANDIDATES)[0]
 
     def detail(self, grid, region=None) -> PatternDetail:
         """Detailed evaluation of one excitation grid: every candidate lobe refined."""
         region = self.region if region is None else region
         a = self._as_stack(grid)[:1]
         power = self.power(a)
-        red = region.reduce(power)
-        return self._detail(self.exact(a), power[0], red, region)
+        return self._detail(self.exact(a), power, region.reduce(power), region)
 
 
 class DirectPatternEngine(_Engine):
@@ -360,5 +368,4 @@ class DirectPatternEngine(_Engine):
 
     def detail(self) -> PatternDetail:
         power = self.power()
-        red = self.region.reduce(power)
-        return self._detail(self.pexact, power[0], red)
+        return self._detail(self.pexact, power, self.region.reduce(power), self.region)

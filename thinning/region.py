@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["SampleGrid", "SampledRegion", "Reduction"]
+__all__ = ["SampleGrid", "SampledRegion", "Reduction", "SparsePower"]
 
 #: Radius of the first main-beam window, in samples per oversampling factor. The first null
 #: of a uniformly filled aperture lies about one oversampling factor of samples from the peak;
@@ -151,6 +151,7 @@ class _Window:
     weight: np.ndarray = None  # region weight of each window sample
     w0: np.ndarray = None  # weight of the peak's own alias (the one the main beam removes)
     outer_mask: np.ndarray = None  # 1 for region samples outside the window, else 0
+    pos: np.ndarray = None  # position in the window of every storage index (−1 outside)
 
     def main_beam(self, pw: np.ndarray) -> np.ndarray:
         """Main-beam membership of the window samples of a stack of patterns (B, n)."""
@@ -181,6 +182,33 @@ class Reduction:
     argmax: np.ndarray
     main_beam_weight: list
     windows: list
+    groups: list | None = None  # per distinct window: (window, members, removed weights)
+
+
+class SparsePower:
+    """The power samples of K variants of one pattern that differ from it on a few samples.
+
+    Parameters
+    ----------
+    base : (N,) array   the shared pattern
+    ext : (E,) int      storage indices where the variants differ (sorted)
+    vals : (K, E) array their values there
+    """
+
+    def __init__(self, base, ext, vals):
+        self.base, self.ext, self.vals = base, ext, vals
+        self.pos = np.full(base.size, -1, dtype=np.int64)
+        self.pos[ext] = np.arange(ext.size)
+
+    def get(self, b, flat):
+        p = self.pos[flat]
+        return np.where(p >= 0, self.vals[b, np.maximum(p, 0)], self.base[flat])
+
+    def above(self, thr):
+        """(variant, storage index) of every sample at or above the variant's threshold;
+        the caller guarantees that no sample outside ``ext`` qualifies."""
+        b, e = np.nonzero(self.vals >= thr[:, None])
+        return b, self.ext[e]
 
 
 class SampledRegion:
@@ -358,28 +386,71 @@ class SampledRegion:
         w[win.flat] -= red.main_beam_weight[i]
         return w
 
-    def candidates(
-        self, power1: np.ndarray, weff: np.ndarray, margin_db: float, cap: int
-    ) -> np.ndarray:
-        """Local maxima of one pattern in the sidelobe region worth refining.
+    def removed_weight(self, red: Reduction, b, flat) -> np.ndarray:
+        """Weight the main beam of pattern ``b[k]`` removed at sample ``flat[k]`` (0 outside
+        its window), for many (pattern, sample) pairs at once."""
+        b = np.asarray(b, dtype=np.int64)
+        flat = np.asarray(flat, dtype=np.int64)
+        out = np.zeros(flat.shape)
+        for win, mine, removed in self._window_groups(red):
+            sel = mine[b] & (win.pos[flat] >= 0)
+            if sel.any():
+                out[sel] = removed[b[sel], win.pos[flat[sel]]]
+        return out
 
-        Every sample of the region that is at least as high as each of its neighbours in the
-        region, and within ``margin_db`` of the highest sample, ranked by a parabolic estimate
-        of its lobe's peak; at most ``cap`` of them.
+    def _window_groups(self, red: Reduction):
+        """(window, patterns using it, (B, W) removed weights) for each distinct window."""
+        if red.groups is None:
+            red.groups = []
+            n = len(red.windows)
+            for win in {id(w): w for w in red.windows}.values():
+                if win.pos is None:
+                    win.pos = np.full(self.grid.nr * self.grid.nc, -1, dtype=np.int64)
+                    win.pos[win.flat] = np.arange(win.flat.size)
+                mine = np.array([red.windows[i] is win for i in range(n)])
+                removed = np.zeros((n, win.flat.size))
+                for i in np.flatnonzero(mine):
+                    removed[i] = red.main_beam_weight[i]
+                red.groups.append((win, mine, removed))
+        return red.groups
+
+    def candidates(self, power, red: Reduction, margin_db: float, cap: int):
+        """Local maxima of a stack of patterns in their sidelobe regions worth refining.
+
+        For every pattern, each sample of its sidelobe region that is at least as high as its
+        neighbours in the region and within ``margin_db`` of the pattern's highest region
+        sample, ranked by a parabolic (in dB) estimate of its lobe's peak along u and v; at
+        most ``cap`` per pattern.
+
+        Parameters
+        ----------
+        power : (B, nr·nc) array   |AF|² samples (the array given to :meth:`reduce`)
+        red : Reduction            its reduction
 
         Returns
         -------
-        numpy.ndarray of int   storage indices, best first
+        b, flat : int arrays   pattern and storage index of each candidate, best first
+                               within each pattern
         """
         g = self.grid
-        pm = np.where(weff > 0, power1, -1.0)
-        top = pm.max()
-        if top <= 0:
-            return np.zeros(0, dtype=np.int64)
-        idx = np.flatnonzero(pm >= top * 10 ** (-margin_db / 10))
+        if isinstance(power, SparsePower):
+            get, above = power.get, power.above
+        else:
+            power = np.atleast_2d(power)
+
+            def get(b, flat):
+                return power[b, flat]
+
+            def above(thr):
+                return np.nonzero(power >= thr[:, None].astype(power.dtype))
+
+        top = red.psl * red.peak
+        b, idx = above(top * 10 ** (-margin_db / 10))
+        ok = (top[b] > 0) & self._eligible(red, b, idx)
+        b, idx = b[ok], idx[ok]
         s, c = np.divmod(idx, g.nc)
         r = g.signed_rows[s]
-        here = pm[idx]
+        here = get(b, idx)
         is_max = np.ones(idx.size, dtype=bool)
         offsets = (
             [(0, -1), (0, 1)]
@@ -390,53 +461,66 @@ class SampledRegion:
         for dr, dc in offsets:
             n = g.neighbour(r, c, dr, dc)
             nb[(dr, dc)] = n
-            is_max &= here >= np.where(n >= 0, pm[np.maximum(n, 0)], -1.0)
-        idx, r, c, here = idx[is_max], r[is_max], c[is_max], here[is_max]
-        # rank by a parabolic (in dB) estimate of each lobe's peak, along u and along v
-        logc = np.log(np.maximum(power1[idx], 1e-300))
+            n0 = np.maximum(n, 0)
+            val = np.where((n >= 0) & self._eligible(red, b, n0), get(b, n0), -1.0)
+            is_max &= here >= val
+        b, idx, here = b[is_max], idx[is_max], here[is_max]
+        logc = np.log(np.maximum(here.astype(np.float64), 1e-300))
         est = logc.copy()
         axes = [((0, -1), (0, 1))] if g.nr == 1 else [((0, -1), (0, 1)), ((-1, 0), (1, 0))]
         for lo, hi in axes:
             vals = []
             for off in (lo, hi):
                 n = nb[off][is_max]
-                vals.append(
-                    np.log(
-                        np.maximum(np.where(n >= 0, power1[np.maximum(n, 0)], power1[idx]), 1e-300)
-                    )
-                )
+                v = np.where(n >= 0, get(b, np.maximum(n, 0)), here).astype(np.float64)
+                vals.append(np.log(np.maximum(v, 1e-300)))
             lo_v, hi_v = vals
             den = lo_v - 2 * logc + hi_v
             delta = np.where(den < 0, 0.5 * (lo_v - hi_v) / np.where(den < 0, den, -1), 0.0)
             est += np.where(den < 0, -0.25 * (lo_v - hi_v) * delta, 0.0)
-        order = np.argsort(-est, kind="stable")
-        return idx[order[:cap]]
+        est -= np.log(red.peak[b])
+        order = np.lexsort((-est, b))
+        b, idx = b[order], idx[order]
+        first = np.searchsorted(b, b)  # rank within each pattern
+        keep = np.arange(b.size) - first < cap
+        return b[keep], idx[keep]
 
-    def alias_point(self, flat: int, in_main_beam_weight: float) -> np.ndarray:
-        """A direction (u, v) in the disc that sample ``flat`` stands for, outside the main beam.
+    def _eligible(self, red, b, flat) -> np.ndarray:
+        """Is sample ``flat`` in the sidelobe region of pattern ``b``?"""
+        return (self.weight[flat] - self.removed_weight(red, b, flat)) > 0
 
-        Of the sample's aliases inside the disc, the one nearest the centre; the peak's own
-        alias is skipped when the main beam covers the sample.
+    def alias_points(self, flats, removed) -> np.ndarray:
+        """Directions (u, v) in the disc that samples stand for, outside the main beam.
+
+        Of each sample's aliases inside the disc, the one nearest its centre; the peak's own
+        alias is skipped where the main beam removed weight from the sample.
+
+        Returns
+        -------
+        (n, 2) array
         """
         g = self.grid
-        s, c = divmod(int(flat), g.nc)
+        s, c = np.divmod(np.asarray(flats, dtype=np.int64), g.nc)
         u0 = g.signed_cols[c] * g.du
         v0 = g.signed_rows[s] * g.dv
         if not g.periodic:
-            return np.array([u0, v0])
+            return np.column_stack([u0, v0])
         tu, tv = g.period
         cu, cv = self.centre
-        best, best_r = None, math.inf
         reach = self.radius + math.hypot(cu, cv)
         n_u = int(math.ceil(reach / tu)) + 1
         n_v = 0 if tv is None else int(math.ceil(reach / tv)) + 1
-        for p in range(-n_u, n_u + 1):
-            for q in range(-n_v, n_v + 1):
-                if p == 0 and q == 0 and in_main_beam_weight > 0:
-                    continue
-                uu = u0 + p * tu
-                vv = v0 + (0.0 if tv is None else q * tv)
-                rr = math.hypot(uu - cu, vv - cv)
-                if rr <= self.radius * (1 + 1e-12) and rr < best_r:
-                    best, best_r = np.array([uu, vv]), rr
-        return best if best is not None else np.array([u0, v0])
+        pp, qq = np.meshgrid(np.arange(-n_u, n_u + 1), np.arange(-n_v, n_v + 1), indexing="ij")
+        pp, qq = pp.ravel(), qq.ravel()
+        uu = u0[:, None] + pp[None, :] * tu
+        vv = v0[:, None] + (0.0 if tv is None else qq[None, :] * tv)
+        vv = np.broadcast_to(vv, uu.shape)
+        rr = np.hypot(uu - cu, vv - cv)
+        bad = rr > self.radius * (1 + 1e-12)
+        bad |= ((pp == 0) & (qq == 0))[None, :] & (np.asarray(removed) > 0)[:, None]
+        rr = np.where(bad, np.inf, rr)
+        k = np.argmin(rr, axis=1)
+        none = ~np.isfinite(rr[np.arange(k.size), k])
+        pick = np.column_stack([uu[np.arange(k.size), k], vv[np.arange(k.size), k]])
+        pick[none] = np.column_stack([u0, v0])[none]
+        return pick

@@ -40,7 +40,7 @@ from .errors import LayoutError
 from .exact import GridExact, refine_peaks
 from .lattice import generated_lattice, grating_lobe_positions
 from .layout import Layout
-from .pattern import DirectPatternEngine, FFTPatternEngine, _mb_weight
+from .pattern import DirectPatternEngine, FFTPatternEngine
 from .units import to_db
 from .units import wavelength as wavelength_of
 
@@ -365,7 +365,7 @@ def monte_carlo(
         asl[s : s + k] = (p @ weff) / wsum / peak
         # refine each trial's highest sidelobe sample on its exact pattern
         ex = GridExact(grids, (fit.pitch[0], 0.0 if fit.linear else fit.pitch[1]), lam)
-        uv = np.array([region.alias_point(int(f), _mb_weight(red, region, 0, int(f))) for f in arg])
+        uv = region.alias_points(arg, region.removed_weight(red, np.zeros_like(arg), arg))
         ref, _, _ = refine_peaks(
             ex,
             uv[:, 0],

@@ -27,12 +27,12 @@ import csv
 import io
 import json
 import math
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
+from .cluster import executor_for, spec_from_text
 from .design import layout_metadata, prepare_output
 from .errors import SpecError
 from .io.atomic import atomic_write, atomic_write_json
@@ -178,9 +178,13 @@ def _done(folder: Path, spec: Spec, n: int) -> dict | None:
     return meta if same else None
 
 
-def _run_budget(spec_path: str, n: int, folder: str) -> dict:
-    """One budget (runs in a worker process): design, score, write the sub-folder."""
-    spec = load_spec(spec_path)
+def _design_budget(spec_text: str, source: str, n: int) -> tuple[np.ndarray, dict]:
+    """One budget (a work unit, run wherever the runner puts it): design and score.
+
+    Takes the spec's text, not its path, and returns the site mask and the contents of
+    layout.json; the caller writes the files, so a remote worker needs no shared folder.
+    """
+    spec = spec_from_text(spec_text, source)
     spec.budget_elements, spec.budget_fill = n, None
     sites = spec.sites()
     problem = spec.problem(sites)
@@ -205,11 +209,14 @@ def _run_budget(spec_path: str, n: int, folder: str) -> dict:
     meta = layout_metadata(spec, search, metrics, len(sites), problem)
     if spec.method == "density":
         meta["method_expected_asl_db"] = round(float(to_db(density_expected_asl(problem, spec))), 6)
-    out = Path(folder)
-    out.mkdir(parents=True, exist_ok=True)
-    write_layout_csv(out / "layout.csv", layout)
-    atomic_write_json(out / "layout.json", meta)
-    return meta
+    return search.mask, meta
+
+
+def _write_budget(folder: Path, sites, mask, meta: dict) -> None:
+    """The sub-folder of one budget: layout.csv, then layout.json (which marks it done)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    write_layout_csv(folder / "layout.csv", Layout.from_sites(sites, mask))
+    atomic_write_json(folder / "layout.json", meta)
 
 
 def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict, list]:
@@ -342,8 +349,15 @@ def run_sweep(
     out_dir,
     workers: int = 1,
     progress=None,
+    cluster: str | None = None,
 ) -> SweepResult:
-    """Run the spec at every budget and write sweep.csv (and the per-budget folders)."""
+    """Run the spec at every budget and write sweep.csv (and the per-budget folders).
+
+    The budgets run in this process, in ``workers`` local processes, or on the Dask cluster
+    at ``cluster`` (a scheduler address; ``workers`` is then ignored); the results do not
+    depend on which. The spec's text goes to the workers and their layouts come back, so
+    every file is written here (see :mod:`thinning.cluster`).
+    """
     spec = load_spec(spec_path)
     sites = spec.sites()
     m = len(sites)
@@ -370,21 +384,15 @@ def run_sweep(
         else:
             todo.append(n)
     if todo:
-        if workers > 1 and len(todo) > 1:
-            with ProcessPoolExecutor(min(workers, len(todo))) as pool:
-                futs = {
-                    n: pool.submit(_run_budget, str(spec_path), n, str(_budget_folder(out, n)))
-                    for n in todo
-                }
-                for n in todo:
-                    metas[n] = futs[n].result()
-                    if progress:
-                        progress(n, metas[n])
-        else:
-            for n in todo:
-                metas[n] = _run_budget(str(spec_path), n, str(_budget_folder(out, n)))
+        text = Path(spec_path).read_bytes().decode("utf-8")
+        k = len(todo)
+        with executor_for(min(workers, k), cluster) as runner:
+            done = runner.imap(_design_budget, [text] * k, [str(spec_path)] * k, todo)
+            for n, (mask, meta) in zip(todo, done, strict=True):
+                _write_budget(_budget_folder(out, n), sites, mask, meta)
+                metas[n] = meta
                 if progress:
-                    progress(n, metas[n])
+                    progress(n, meta)
     filled = _filled_figures(spec, sites)
     lin = spec.lattice.kind == "linear"
     n_s = independent_samples(sites.x, sites.y, spec.wavelength, spec.scan_max, lin)

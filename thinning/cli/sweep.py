@@ -33,8 +33,15 @@ __all__ = ["sweep"]
     show_default=True,
     help="Budgets run in parallel processes (results do not depend on it).",
 )
+@click.option(
+    "--cluster",
+    default=None,
+    metavar="ADDRESS",
+    help="Run the budgets on an existing Dask cluster, e.g. tcp://host:8786 (needs "
+    "thinning[cluster]; --workers is then ignored; results do not depend on it).",
+)
 @click.option("--quiet", is_flag=True, help="No progress on stderr.")
-def sweep(spec_toml, elements, fill, out_dir, workers, quiet):
+def sweep(spec_toml, elements, fill, out_dir, workers, cluster, quiet):
     """Run the spec's method at several budgets and compare them with theory."""
     from ..sweep import run_sweep, write_sweep_outputs
 
@@ -46,7 +53,9 @@ def sweep(spec_toml, elements, fill, out_dir, workers, quiet):
                 err=True,
             )
 
-    res = run_sweep(spec_toml, elements, fill, out_dir, workers=workers, progress=progress)
+    res = run_sweep(
+        spec_toml, elements, fill, out_dir, workers=workers, progress=progress, cluster=cluster
+    )
     files = res.files + write_sweep_outputs(res)
     if res.reused:
         click.echo(

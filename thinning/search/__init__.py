@@ -155,6 +155,23 @@ class Tracker:
             ev = Evaluation(self.problem.combine(psl, asl), psl, asl)
         else:
             ev = self.problem.evaluate(g)
+        self._account(g, ev)
+        return ev
+
+    def evaluate_swaps(self, base, off_genes, on_genes, genomes=None) -> Evaluation:
+        """Evaluate K swap moves of ``base`` (gene ``off_genes[k]`` off, ``on_genes[k]`` on)
+        by updating its transform (:meth:`ThinningProblem.evaluate_swaps`), in this process;
+        counted and tracked like :meth:`evaluate`."""
+        base = np.asarray(base, dtype=bool)
+        if genomes is None:
+            genomes = np.repeat(base[None], len(off_genes), axis=0)
+            genomes[np.arange(len(off_genes)), off_genes] = False
+            genomes[np.arange(len(on_genes)), on_genes] = True
+        ev = self.problem.evaluate_swaps(base, off_genes, on_genes)
+        self._account(np.asarray(genomes, dtype=bool), ev)
+        return ev
+
+    def _account(self, g, ev):
         self.evaluations += g.shape[0]
         i = int(np.argmin(ev.objective))
         if ev.objective[i] < self.best[0]:
@@ -162,7 +179,6 @@ class Tracker:
             self.best_genome = g[i].copy()
             self.record()
         self._maybe_report()
-        return ev
 
     def record(self, **extra):
         """Add a point to the convergence history."""

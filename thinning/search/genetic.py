@@ -54,6 +54,10 @@ INDIVIDUAL_NAME = "ThinningIndividual"
 #: Improvements of the best objective smaller than this do not reset the stall count  [dB].
 STALL_TOL = 1e-6
 #: Options for which None (or 0, as TOML has no null) means "no limit" / "the default".
+#: Neighbourhoods (on × off swaps) up to this size are tried in a random order without
+#: repetition; larger ones are sampled with replacement, and a genome counts as a local
+#: optimum once as many swaps as the neighbourhood holds have failed to improve it.
+PERMUTE_MAX = 1 << 20
 _NO_LIMIT = ("local_swaps", "local_batch", "generations", "stall_generations")
 
 
@@ -226,18 +230,19 @@ def swap_mutation(ind, classes, rng, max_swaps=2):
     (ind,)
     """
     n = int(rng.integers(1, max_swaps + 1))
+    touched = np.zeros(len(ind), dtype=bool)  # a gene moves at most once: no swap undone
     for _ in range(n):
-        counts = np.array([int(ind[idx].sum()) for idx in classes])
-        sizes = np.array([idx.size for idx in classes])
-        moves = counts * (sizes - counts)
+        on_free = [idx[ind[idx] & ~touched[idx]] for idx in classes]
+        off_free = [idx[~ind[idx] & ~touched[idx]] for idx in classes]
+        moves = np.array([a.size * b.size for a, b in zip(on_free, off_free, strict=True)])
         total = moves.sum()
         if total == 0:
             break
         c = int(rng.choice(len(classes), p=moves / total))
-        idx = classes[c]
-        on, off = idx[ind[idx]], idx[~ind[idx]]
-        ind[on[rng.integers(on.size)]] = False
-        ind[off[rng.integers(off.size)]] = True
+        i = on_free[c][rng.integers(on_free[c].size)]
+        j = off_free[c][rng.integers(off_free[c].size)]
+        ind[i], ind[j] = False, True
+        touched[[i, j]] = True
     return (ind,)
 
 
@@ -293,7 +298,9 @@ class _Climber:
     off gene of the same class) in batches of ``batch``, each batch evaluated in one tracker
     call; the best improving swap of a batch is taken. The climber remembers where it stopped,
     so a later call on the same genome goes on with the swaps not yet tried, and it knows when
-    a genome is a local optimum (no single swap improves it).
+    a genome is a local optimum (no single swap improves it; for neighbourhoods larger than
+    :data:`PERMUTE_MAX`, sampled with replacement, when as many swaps as the neighbourhood
+    holds have failed).
     """
 
     def __init__(self, problem, tracker, rng, batch):
@@ -312,7 +319,9 @@ class _Climber:
         self.off = [idx[~self.genome[idx]] for idx in self.classes]
         self.sizes = np.array([a.size * b.size for a, b in zip(self.on, self.off, strict=True)])
         self.offsets = np.concatenate([[0], np.cumsum(self.sizes)])
-        self.order = self.rng.permutation(int(self.offsets[-1]))
+        self.total = int(self.offsets[-1])
+        # a permutation of a small neighbourhood; a large one is sampled with replacement
+        self.order = self.rng.permutation(self.total) if self.total <= PERMUTE_MAX else None
         self.pos = 0
 
     def _moves(self, flat):
@@ -344,25 +353,30 @@ class _Climber:
         while spent < evaluations and not self.tracker.should_stop():
             n = min(
                 self.batch,
-                int(evaluations - spent),
-                int(self.order.size - self.pos),
-                int(min(self.tracker.remaining, 2**62)),
+                evaluations - spent,
+                self.total - self.pos,
+                self.tracker.remaining,
             )
+            n = int(n)
             if n <= 0:
                 break
-            flat = self.order[self.pos : self.pos + n]
+            if self.order is not None:
+                flat = self.order[self.pos : self.pos + n]
+            else:
+                flat = self.rng.integers(self.total, size=n)
             self.pos += n
             on, off = self._moves(flat)
             trial = np.repeat(self.genome[None, :], n, axis=0)
             rows = np.arange(n)
             trial[rows, on] = False
             trial[rows, off] = True
-            ev = self.tracker.evaluate(trial)
+            # scored by updating the base layout's transform, not by n new FFTs
+            ev = self.tracker.evaluate_swaps(self.genome, on, off, trial)
             spent += n
             j = int(np.argmin(ev.objective))
             if ev.objective[j] < self.value - STALL_TOL:
                 self._reset(trial[j], ev.objective[j])
-            elif self.pos >= self.order.size:
+            elif self.pos >= self.total:
                 self.optima.add(self.key)
                 return self.genome.copy(), self.value, True
         return self.genome.copy(), self.value, False
