@@ -22,6 +22,12 @@ Usage::
 
 from __future__ import annotations
 
+import os
+
+# as the thinning command does (thinning/cli/__init__.py): one BLAS thread per process
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
 import argparse
 import math
 import platform

@@ -98,6 +98,8 @@ class GridExact:
             a = self.a[0]  # one pattern: (R, C) @ (m, C, k) broadcasts over m
         elif which.size == self.a.shape[0] and np.array_equal(which, np.arange(which.size)):
             a = self.a  # one point per pattern, in order: no gather needed
+        elif which.size > self.a.shape[0]:
+            a = self.a  # grouped per pattern below
         else:
             a = self.a[which]
         k = e.shape[-1]
@@ -107,6 +109,20 @@ class GridExact:
             m, c, kk = e.shape
             t = (a @ e.transpose(1, 0, 2).reshape(c, m * kk)).reshape(-1, m, kk)
             t = t.transpose(1, 0, 2)
+        elif a is self.a and which.size > a.shape[0]:
+            # several points per pattern: one product per pattern with its points side by
+            # side (no copy of the excitations per point)
+            b, c = a.shape[0], a.shape[2]
+            kk = e.shape[-1]
+            order = np.argsort(which, kind="stable")
+            w_sorted = which[order]
+            slot = np.empty(which.size, dtype=np.int64)
+            slot[order] = np.arange(which.size) - np.searchsorted(w_sorted, w_sorted)
+            cap = int(slot.max()) + 1
+            ep = np.zeros((b, cap, c, kk), dtype=e.dtype)
+            ep[which, slot] = e
+            t = np.matmul(a, ep.transpose(0, 2, 1, 3).reshape(b, c, cap * kk))
+            t = t.reshape(b, -1, cap, kk)[which, :, slot, :]  # (m, R, kk)
         else:
             t = np.matmul(a, e)  # (m, R, k) or (m, R, 2k)
         if not np.iscomplexobj(a):

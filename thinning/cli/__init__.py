@@ -9,12 +9,19 @@ Exit status: 0 success, 1 bad input or output problem, 2 bad command line, 130 i
 
 from __future__ import annotations
 
+import os
 import sys
 
-import click
+# The pattern engine makes many small BLAS calls (refinement, reductions); a threaded BLAS
+# only contends with itself and with our worker processes there, erratically so on a loaded
+# machine. One thread per process, unless the user asked otherwise. Set before numpy loads.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
 
-from .. import __version__
-from ..errors import ThinningError
+import click  # noqa: E402
+
+from .. import __version__  # noqa: E402
+from ..errors import ThinningError  # noqa: E402
 
 __all__ = ["cli", "main"]
 
