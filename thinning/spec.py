@@ -46,6 +46,14 @@ METHOD_OPTIONS = {
     "seed_density_fraction",
     "local_swaps",
     "local_every",
+    "trials",
+    "iterations",
+    "ift_batch",
+    "ift_sll_db",
+    "ift_density_fraction",
+    "seed_ift_fraction",
+    "polish_fraction",
+    "local_batch",
 }
 
 KEYS = {

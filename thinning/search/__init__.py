@@ -25,7 +25,7 @@ from ..problem import BATCH, Evaluation, ThinningProblem
 
 __all__ = ["METHODS", "SearchResult", "Tracker", "run_method", "method_module"]
 
-METHODS = ("random", "density", "genetic")
+METHODS = ("random", "density", "genetic", "ift")
 
 # -- worker processes ------------------------------------------------------------------------
 _WORKER_PROBLEM: ThinningProblem | None = None

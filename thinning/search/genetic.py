@@ -75,7 +75,9 @@ class GeneticOptions:
         parent is always mutated, so that no evaluation is spent on a copy)
     mutation_swaps : int   a mutation makes 1 … ``mutation_swaps`` swaps (uniformly)
     seed_density_fraction : float  [1]   share of the first population drawn from the
-        density taper (:mod:`thinning.search.density`); the rest is drawn uniformly
+        density taper (:mod:`thinning.search.density`)
+    seed_ift_fraction : float  [1]   share of the first population from short iterative
+        Fourier trials (:mod:`thinning.search.ift`); the rest is drawn uniformly
     local_every : int   generations between two refinements of the best genome (0 = never)
     local_swaps : int or None   evaluations per refinement (None or 0 = 2 × population)
     local_batch : int or None   swaps proposed per hill-climbing step (None or 0 = population)
@@ -92,6 +94,7 @@ class GeneticOptions:
     mutation_rate: float = 0.5
     mutation_swaps: int = 2
     seed_density_fraction: float = 0.5
+    seed_ift_fraction: float = 0.0
     local_every: int = 5
     local_swaps: int | None = None
     local_batch: int | None = None
@@ -116,6 +119,7 @@ class GeneticOptions:
                 "crossover_rate",
                 "mutation_rate",
                 "seed_density_fraction",
+                "seed_ift_fraction",
                 "polish_fraction",
             )
             try:
@@ -146,9 +150,17 @@ class GeneticOptions:
             bad("tournament", f"must be between 1 and the population ({self.population})")
         if not 0 <= self.elite < self.population:
             bad("elite", f"must be between 0 and the population − 1 ({self.population - 1})")
-        for name in ("crossover_rate", "mutation_rate", "seed_density_fraction", "polish_fraction"):
+        for name in (
+            "crossover_rate",
+            "mutation_rate",
+            "seed_density_fraction",
+            "seed_ift_fraction",
+            "polish_fraction",
+        ):
             if not 0.0 <= getattr(self, name) <= 1.0:
                 bad(name, "is a fraction, between 0 and 1")
+        if self.seed_density_fraction + self.seed_ift_fraction > 1.0:
+            bad("seed_ift_fraction", "with seed_density_fraction, more than the whole population")
         if self.mutation_swaps < 1:
             bad("mutation_swaps", "a mutation makes at least one swap")
         if self.local_every < 0:
@@ -383,13 +395,20 @@ class _Climber:
 
 
 # -- the search ----------------------------------------------------------------------------------
-def _seed_population(problem, rng, k, fraction, options) -> np.ndarray:
-    """k genomes: ``round(fraction·k)`` drawn from the density taper, the rest uniformly.
+def _seed_population(problem, rng, k, fraction, options, ift_fraction=0.0) -> np.ndarray:
+    """k genomes: ``round(fraction·k)`` drawn from the density taper, ``round(ift_fraction·k)``
+    from short iterative Fourier trials, the rest uniformly.
 
     Falls back to uniform draws if :mod:`thinning.search.density` is not available.
     """
-    n_density = int(round(fraction * k))
+    n_ift = int(round(ift_fraction * k))
     parts = []
+    if n_ift > 0:
+        from .ift import ift_genomes
+
+        parts.append(np.asarray(ift_genomes(problem, rng, n_ift, options), dtype=bool))
+    k -= n_ift
+    n_density = int(round(fraction * k))
     if n_density > 0:
         try:
             from . import density
@@ -439,7 +458,9 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
 
     pop = [
         tb.individual(g)
-        for g in _seed_population(problem, rng, pop_size, opts.seed_density_fraction, options)
+        for g in _seed_population(
+            problem, rng, pop_size, opts.seed_density_fraction, options, opts.seed_ift_fraction
+        )
     ]
     _evaluate(tracker, pop)
     pop = [ind for ind in pop if ind.fitness.valid]
