@@ -58,6 +58,9 @@ def _run(problem, method, seed, evaluations, workers, options=None):
     return res, score, seconds
 
 
+RESULTS: dict = {}
+
+
 def haupt(args, evaluations):
     m, n = 200, 154
     sites = Lattice.from_mm("linear", [PITCH_MM]).linear_sites(m)
@@ -81,6 +84,18 @@ def haupt(args, evaluations):
             f"{res.evaluations:7d} {seconds:6.1f}  {res.stopped_by}"
         )
         reached = [h for h in res.history if h["best_psl_db"] <= HAUPT_PSL_DB]
+        RESULTS.setdefault("haupt", []).append(
+            {
+                "symmetry": symmetry,
+                "ends_pinned": pinned is not None,
+                "psl_search_db": res.psl_db,
+                "psl_score_db": score.psl_db,
+                "evaluations": res.evaluations,
+                "seconds": round(seconds, 2),
+                "stopped_by": res.stopped_by,
+                "evaluations_to_target": reached[0]["evaluations"] if reached else None,
+            }
+        )
         if reached:
             print(
                 f"{'':<18} reached {HAUPT_PSL_DB} dB after {reached[0]['evaluations']} "
@@ -106,6 +121,17 @@ def planar(args, evaluations):
     )
     for method in ("random", "density", "genetic"):
         res, score, seconds = _run(problem, method, args.seed, evaluations, args.workers)
+        RESULTS.setdefault("planar", []).append(
+            {
+                "method": method,
+                "sites": len(sites),
+                "elements": n,
+                "psl_search_db": res.psl_db,
+                "psl_score_db": score.psl_db,
+                "evaluations": res.evaluations,
+                "seconds": round(seconds, 2),
+            }
+        )
         print(
             f"{method:<9} {res.psl_db:11.2f} {score.psl_db:10.2f} {score.asl_db:8.2f} "
             f"{res.evaluations:7d} {seconds:6.1f}  {res.stopped_by}"
@@ -119,6 +145,7 @@ def main():
     ap.add_argument("--workers", type=int, default=1, help="evaluation processes")
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--only", choices=("haupt", "planar"), help="run one case only")
+    ap.add_argument("--json", default=None, help="merge the figures into this JSON file")
     args = ap.parse_args()
     scale = 10 if args.quick else 1
     print(
@@ -129,6 +156,20 @@ def main():
         haupt(args, args.evaluations or 60_000 // scale)
     if args.only in (None, "planar"):
         planar(args, args.evaluations or 20_000 // scale)
+    if args.json:
+        import json
+        from pathlib import Path
+
+        path = Path(args.json)
+        data = json.loads(path.read_text()) if path.exists() else {}
+        data["bench_search"] = {
+            "machine": f"{platform.machine()}, Python {platform.python_version()}",
+            "date": time.strftime("%Y-%m-%d"),
+            "seed": args.seed,
+            "workers": args.workers,
+            **RESULTS,
+        }
+        path.write_text(json.dumps(data, indent=2) + "\n")
 
 
 if __name__ == "__main__":
