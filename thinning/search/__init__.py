@@ -77,7 +77,7 @@ class Tracker:
     problem : ThinningProblem
     max_evaluations : int or None
     time_limit_s : float or None  [s]
-    workers : int   processes for evaluation (1 = in this process)
+    workers : int   processes evaluating a batch, this one included (1 = this process only)
     progress : callable(dict) or None   called at most every ``progress_every_s`` seconds
     """
 
@@ -104,8 +104,9 @@ class Tracker:
         self._last_report = -np.inf
         self._pool = None
         if self.workers > 1:
+            # this process is one of the workers: the pool holds the other workers − 1
             self._pool = ProcessPoolExecutor(
-                self.workers, initializer=_init_worker, initargs=(problem,)
+                self.workers - 1, initializer=_init_worker, initargs=(problem,)
             )
 
     # -- lifecycle ------------------------------------------------------------------------
@@ -148,10 +149,21 @@ class Tracker:
         """Evaluate genomes (B, G); counts them and keeps the best."""
         g = np.atleast_2d(np.asarray(genomes, dtype=bool))
         if self._pool is not None and g.shape[0] > BATCH:
+            # this process evaluates every workers-th batch itself, the pool the others
             chunks = [g[s : s + BATCH] for s in range(0, g.shape[0], BATCH)]
-            parts = list(self._pool.map(_evaluate_batch, chunks))
-            psl = np.concatenate([p for p, _ in parts])
-            asl = np.concatenate([a for _, a in parts])
+            futures = {
+                i: self._pool.submit(_evaluate_batch, c)
+                for i, c in enumerate(chunks)
+                if i % self.workers
+            }
+            parts = {}
+            for i in range(0, len(chunks), self.workers):
+                ev_i = self.problem.evaluate(chunks[i])
+                parts[i] = (ev_i.psl_db, ev_i.asl_db)
+            for i, f in futures.items():
+                parts[i] = f.result()
+            psl = np.concatenate([parts[i][0] for i in range(len(chunks))])
+            asl = np.concatenate([parts[i][1] for i in range(len(chunks))])
             ev = Evaluation(self.problem.combine(psl, asl), psl, asl)
         else:
             ev = self.problem.evaluate(g)
