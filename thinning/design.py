@@ -87,6 +87,38 @@ def layout_metadata(
     return meta
 
 
+def score_spec_layout(spec: Spec, sites, mask, source=None):
+    """The layout of a site mask and its full figures (``score --json`` keys) for a spec."""
+    layout = Layout.from_sites(sites, mask, source=source)
+    t = time.perf_counter()
+    metrics = score_layout(
+        layout,
+        spec.frequency,
+        spec.scan_max,
+        spec.element_exponent,
+        sites=len(sites),
+        oversampling=spec.oversampling,
+    ).to_dict()
+    metrics["scoring_s"] = round(time.perf_counter() - t, 3)
+    return layout, metrics
+
+
+def search_and_score(spec: Spec, sites, problem, workers=1, progress=None, source=None):
+    """Run the spec's method on its problem and score the best layout: (search, layout, meta)."""
+    search = run_method(
+        problem,
+        spec.method,
+        spec.seed,
+        spec.options,
+        max_evaluations=spec.max_evaluations,
+        time_limit_s=spec.time_limit_s,
+        workers=workers,
+        progress=progress,
+    )
+    layout, metrics = score_spec_layout(spec, sites, search.mask, source)
+    return search, layout, layout_metadata(spec, search, metrics, len(sites), problem)
+
+
 def robust_summary(spec: Spec, problem, layout: Layout) -> dict:
     """The error model of a robust design, its runtime cost, and a fresh Monte Carlo check."""
     from .stress import monte_carlo
@@ -143,28 +175,9 @@ def run_design(
     sites = spec.sites()
     problem = spec.problem(sites)  # every input problem is raised before any output exists
     out = prepare_output(out_dir)
-    search = run_method(
-        problem,
-        spec.method,
-        spec.seed,
-        spec.options,
-        max_evaluations=spec.max_evaluations,
-        time_limit_s=spec.time_limit_s,
-        workers=workers or spec.workers,
-        progress=progress,
+    search, layout, meta = search_and_score(
+        spec, sites, problem, workers or spec.workers, progress, str(out / "layout.csv")
     )
-    layout = Layout.from_sites(sites, search.mask, source=str(out / "layout.csv"))
-    t = time.perf_counter()
-    metrics = score_layout(
-        layout,
-        spec.frequency,
-        spec.scan_max,
-        spec.element_exponent,
-        sites=len(sites),
-        oversampling=spec.oversampling,
-    ).to_dict()
-    metrics["scoring_s"] = round(time.perf_counter() - t, 3)
-    meta = layout_metadata(spec, search, metrics, len(sites), problem)
     if problem.robust is not None:
         meta["robust"] = robust_summary(spec, problem, layout)
     files = [out / "layout.csv", out / "layout.json"]

@@ -33,14 +33,13 @@ from pathlib import Path
 import numpy as np
 
 from .cluster import executor_for, spec_from_text
-from .design import layout_metadata, prepare_output
+from .design import prepare_output, score_spec_layout, search_and_score
 from .errors import SpecError
 from .io.atomic import atomic_write, atomic_write_json
 from .io.layout_csv import write_layout_csv
 from .layout import Layout
 from .metrics import expected_asl_random
 from .score import score_layout
-from .search import run_method
 from .spec import Spec, load_spec
 from .units import to_db
 
@@ -188,25 +187,7 @@ def _design_budget(spec_text: str, source: str, n: int) -> tuple[np.ndarray, dic
     spec.budget_elements, spec.budget_fill = n, None
     sites = spec.sites()
     problem = spec.problem(sites)
-    search = run_method(
-        problem,
-        spec.method,
-        spec.seed,
-        spec.options,
-        max_evaluations=spec.max_evaluations,
-        time_limit_s=spec.time_limit_s,
-        workers=1,
-    )
-    layout = Layout.from_sites(sites, search.mask)
-    metrics = score_layout(
-        layout,
-        spec.frequency,
-        spec.scan_max,
-        spec.element_exponent,
-        sites=len(sites),
-        oversampling=spec.oversampling,
-    ).to_dict()
-    meta = layout_metadata(spec, search, metrics, len(sites), problem)
+    search, _, meta = search_and_score(spec, sites, problem)
     if spec.method == "density":
         meta["method_expected_asl_db"] = round(float(to_db(density_expected_asl(problem, spec))), 6)
     return search.mask, meta
@@ -261,16 +242,7 @@ def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict
     )
     metas, folders = {}, []
     for pt in res["front"]:
-        lay = Layout.from_sites(sites, pt.mask)
-        metrics = score_layout(
-            lay,
-            spec.frequency,
-            spec.scan_max,
-            spec.element_exponent,
-            sites=len(sites),
-            oversampling=spec.oversampling,
-        ).to_dict()
-        meta = dict(metrics)
+        lay, meta = score_spec_layout(spec, sites, pt.mask)
         meta.update(
             {
                 "method": "pareto",

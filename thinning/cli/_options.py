@@ -6,7 +6,14 @@ import math
 
 import click
 
-__all__ = ["check_frequency", "check_angle", "check_exponent"]
+__all__ = [
+    "check_frequency",
+    "check_angle",
+    "check_exponent",
+    "check_band",
+    "pattern_options",
+    "error_options",
+]
 
 
 def check_frequency(ctx, param, value):
@@ -25,3 +32,111 @@ def check_exponent(ctx, param, value):
     if value is not None and not (math.isfinite(value) and 0 <= value <= 20):
         raise click.BadParameter(f"{value!r}: the element exponent must be in [0, 20]")
     return value
+
+
+def check_band(ctx, param, value):
+    """``LO:HI`` in GHz → (lo, hi)."""
+    if value is None:
+        return None
+    try:
+        lo, hi = (float(v) for v in value.split(":"))
+    except ValueError:
+        raise click.BadParameter(f"{value!r}: expected LO:HI in GHz, e.g. 8.5:10.5") from None
+    if not (0 < lo < hi):
+        raise click.BadParameter(f"{value!r}: expected 0 < LO < HI")
+    return lo, hi
+
+
+def _apply(options, f):
+    for option in reversed(options):
+        f = option(f)
+    return f
+
+
+def pattern_options(f):
+    """--freq-ghz (required), --scan-max-deg, --element-exponent."""
+    return _apply(
+        [
+            click.option(
+                "--freq-ghz",
+                type=float,
+                required=True,
+                callback=check_frequency,
+                help="Design frequency [GHz].",
+            ),
+            click.option(
+                "--scan-max-deg",
+                type=float,
+                default=0.0,
+                show_default=True,
+                callback=check_angle,
+                help="Half-angle of the scan cone [deg].",
+            ),
+            click.option(
+                "--element-exponent",
+                type=float,
+                default=1.0,
+                show_default=True,
+                callback=check_exponent,
+                help="Element power pattern cos^Q(theta); 0 = isotropic.",
+            ),
+        ],
+        f,
+    )
+
+
+def error_options(trials: int):
+    """The built-array options shared by ``stress`` and ``report``."""
+    return lambda f: _apply(
+        [
+            click.option(
+                "--band-ghz",
+                callback=check_band,
+                default=None,
+                metavar="LO:HI",
+                help="Band edges [GHz] for the squint and grating-lobe table.",
+            ),
+            click.option(
+                "--steering",
+                type=click.Choice(["phase", "delay"]),
+                default="phase",
+                show_default=True,
+                help="Phase shifters squint across the band; delay does not.",
+            ),
+            click.option(
+                "--amplitude-error-db",
+                type=click.FloatRange(0, 10),
+                default=0.0,
+                show_default=True,
+                help="rms amplitude error [dB].",
+            ),
+            click.option(
+                "--phase-error-deg",
+                type=click.FloatRange(0, 180),
+                default=0.0,
+                show_default=True,
+                help="rms phase error [deg].",
+            ),
+            click.option(
+                "--phase-bits",
+                type=click.IntRange(1, 16),
+                default=None,
+                help="Phase-shifter bits (decorrelated quantisation).",
+            ),
+            click.option(
+                "--failures",
+                type=click.IntRange(min=0),
+                default=0,
+                show_default=True,
+                help="Elements failed per trial.",
+            ),
+            click.option(
+                "--trials",
+                type=click.IntRange(min=1),
+                default=trials,
+                show_default=True,
+                help="Monte Carlo trials.",
+            ),
+        ],
+        f,
+    )

@@ -7,7 +7,7 @@ from pathlib import Path
 import click
 
 from . import cli
-from ._options import check_angle, check_exponent, check_frequency
+from ._options import check_angle, check_exponent, check_frequency, error_options, pattern_options
 
 __all__ = ["export", "report"]
 
@@ -121,38 +121,9 @@ def export(
         click.echo(f"wrote {f}")
 
 
-def _band(ctx, param, value):
-    if value is None:
-        return None
-    try:
-        lo, hi = (float(v) for v in value.split(":"))
-    except ValueError:
-        raise click.BadParameter(f"{value!r}: expected LO:HI in GHz") from None
-    if not 0 < lo < hi:
-        raise click.BadParameter(f"{value!r}: expected 0 < LO < HI")
-    return lo, hi
-
-
 @cli.command()
 @click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
-@click.option(
-    "--freq-ghz",
-    type=float,
-    required=True,
-    callback=check_frequency,
-    help="Design frequency [GHz].",
-)
-@click.option(
-    "--scan-max-deg",
-    type=float,
-    default=0.0,
-    show_default=True,
-    callback=check_angle,
-    help="Half-angle of the scan cone [deg].",
-)
-@click.option(
-    "--element-exponent", type=float, default=1.0, show_default=True, callback=check_exponent
-)
+@pattern_options
 @click.option(
     "--out",
     "out_path",
@@ -167,13 +138,7 @@ def _band(ctx, param, value):
     default=None,
     help="Spec of the panel: outline for the drawing, sites for the fill.",
 )
-@click.option("--band-ghz", callback=_band, default=None, metavar="LO:HI")
-@click.option("--steering", type=click.Choice(["phase", "delay"]), default="phase")
-@click.option("--amplitude-error-db", type=click.FloatRange(0, 10), default=0.0)
-@click.option("--phase-error-deg", type=click.FloatRange(0, 180), default=0.0)
-@click.option("--phase-bits", type=click.IntRange(1, 16), default=None)
-@click.option("--failures", type=click.IntRange(min=0), default=0)
-@click.option("--trials", type=click.IntRange(min=1), default=100, show_default=True)
+@error_options(trials=100)
 def report(
     layout_csv,
     freq_ghz,

@@ -7,7 +7,7 @@ import json
 import click
 
 from . import cli
-from ._options import check_angle, check_exponent, check_frequency
+from ._options import pattern_options
 
 __all__ = ["score"]
 
@@ -51,29 +51,7 @@ def format_table(r: dict) -> str:
 
 @cli.command()
 @click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
-@click.option(
-    "--freq-ghz",
-    type=float,
-    required=True,
-    callback=check_frequency,
-    help="Operating frequency [GHz].",
-)
-@click.option(
-    "--scan-max-deg",
-    type=float,
-    default=0.0,
-    show_default=True,
-    callback=check_angle,
-    help="Half-angle of the scan cone [deg].",
-)
-@click.option(
-    "--element-exponent",
-    type=float,
-    default=1.0,
-    show_default=True,
-    callback=check_exponent,
-    help="Element power pattern cos^Q(theta); 0 = isotropic.",
-)
+@pattern_options
 @click.option(
     "--sites",
     type=click.IntRange(min=1),

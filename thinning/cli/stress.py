@@ -7,21 +7,9 @@ import json
 import click
 
 from . import cli
-from ._options import check_angle, check_exponent, check_frequency
+from ._options import error_options, pattern_options
 
 __all__ = ["stress"]
-
-
-def _band(ctx, param, value):
-    if value is None:
-        return None
-    try:
-        lo, hi = (float(v) for v in value.split(":"))
-    except ValueError:
-        raise click.BadParameter(f"{value!r}: expected LO:HI in GHz, e.g. 8.5:10.5") from None
-    if not (0 < lo < hi):
-        raise click.BadParameter(f"{value!r}: expected 0 < LO < HI")
-    return lo, hi
 
 
 def format_stress(r: dict) -> str:
@@ -73,71 +61,8 @@ def format_stress(r: dict) -> str:
 
 @cli.command()
 @click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
-@click.option(
-    "--freq-ghz",
-    type=float,
-    required=True,
-    callback=check_frequency,
-    help="Design frequency [GHz].",
-)
-@click.option(
-    "--scan-max-deg",
-    type=float,
-    default=0.0,
-    show_default=True,
-    callback=check_angle,
-    help="Half-angle of the scan cone [deg].",
-)
-@click.option(
-    "--element-exponent",
-    type=float,
-    default=1.0,
-    show_default=True,
-    callback=check_exponent,
-    help="Element power pattern cos^Q(theta).",
-)
-@click.option(
-    "--band-ghz",
-    callback=_band,
-    default=None,
-    metavar="LO:HI",
-    help="Band edges [GHz] for the squint and grating-lobe table.",
-)
-@click.option(
-    "--steering",
-    type=click.Choice(["phase", "delay"]),
-    default="phase",
-    show_default=True,
-    help="Phase shifters squint across the band; delay does not.",
-)
-@click.option(
-    "--amplitude-error-db",
-    type=click.FloatRange(0, 10),
-    default=0.0,
-    show_default=True,
-    help="rms amplitude error [dB].",
-)
-@click.option(
-    "--phase-error-deg",
-    type=click.FloatRange(0, 180),
-    default=0.0,
-    show_default=True,
-    help="rms phase error [deg].",
-)
-@click.option(
-    "--phase-bits",
-    type=click.IntRange(1, 16),
-    default=None,
-    help="Phase-shifter bits (decorrelated quantisation).",
-)
-@click.option(
-    "--failures",
-    type=click.IntRange(min=0),
-    default=0,
-    show_default=True,
-    help="Elements failed per trial.",
-)
-@click.option("--trials", type=click.IntRange(min=1), default=200, show_default=True)
+@pattern_options
+@error_options(trials=200)
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True)
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
 def stress(
