@@ -101,7 +101,7 @@ def bench_workers():
         for w in (1, 2):
             with Tracker(p, workers=w) as tr:
                 tr.evaluate(g[:32])  # start the pool and warm the FFT plans
-                times[w] = timed(lambda tr=tr, g=g: tr.evaluate(g), 3)
+                times[w] = timed(lambda tr=tr, g=g: tr.evaluate(g), 9)
                 results[w] = tr.evaluate(g).objective
         out.append(
             {
