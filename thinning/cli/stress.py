@@ -12,6 +12,10 @@ from ._options import error_options, pattern_options
 __all__ = ["stress"]
 
 
+def _num(x) -> str:
+    return "n/a" if x is None else f"{x:.2f}"
+
+
 def format_stress(r: dict) -> str:
     """The readable form of a stress analysis."""
     out = [
@@ -51,7 +55,7 @@ def format_stress(r: dict) -> str:
         f"  PSL nominal {r['psl_db']['nominal']:.2f} dB, median {r['psl_db']['median']:.2f} dB, "
         f"90th percentile {r['psl_db']['p90']:.2f} dB",
         f"  ASL nominal {r['asl_db']['nominal']:.2f} dB, mean {r['asl_db']['mean']:.2f} dB; "
-        f"published error floor {r['floor_asl_db']} dB, "
+        f"published error floor {_num(r['floor_asl_db'])} dB, "
         f"nominal + floor {r['expected_asl_db']:.2f} dB",
         "",
         "Idealised model (no mutual coupling): verify by full-wave simulation and measurement.",
