@@ -34,9 +34,10 @@ __all__ = ["FFTPatternEngine", "DirectPatternEngine", "Scores", "PatternDetail"]
 MARGIN_DB = (1.5, 1.0)
 #: At most this many candidate lobes are refined per pattern in a detailed evaluation.
 MAX_CANDIDATES = 64
-#: ... and in the search's fast evaluation: the highest few lobes by their parabolic peak
-#: estimate, so that a search cannot hide its worst lobe between two samples.
-FAST_CANDIDATES = 3
+#: ... and in the search's fast evaluation (2-D, 1-D): the highest few lobes by their
+#: parabolic peak estimate, so that a search cannot hide its worst lobe between two samples.
+#: An optimised linear array has many lobes near its peak level and 1-D refinement is cheap.
+FAST_CANDIDATES = (3, 8)
 
 
 @dataclass
@@ -303,7 +304,8 @@ class FFTPatternEngine(_Engine):
                 red.argmax, region.removed_weight(red, np.arange(n), red.argmax)
             )
             return Scores(red.psl.copy(), red.asl.copy(), uv)
-        return self._scores(self.exact(a), power, red, region, FAST_CANDIDATES)[0]
+        cap = FAST_CANDIDATES[1] if self.linear else FAST_CANDIDATES[0]
+        return self._scores(self.exact(a), power, red, region, cap)[0]
 
     def detail(self, grid, region=None) -> PatternDetail:
         """Detailed evaluation of one excitation grid: every candidate lobe refined."""

@@ -476,7 +476,8 @@ class ThinningProblem:
         )
         base_exact = eng.exact(grid0)
         exact = SwapExact(base_exact, jj, ii, sign, np.full(k_moves, peak))
-        b, flats = region.candidates(power, red, margin, FAST_CANDIDATES)
+        cap = FAST_CANDIDATES[1] if eng.linear else FAST_CANDIDATES[0]
+        b, flats = region.candidates(power, red, margin, cap)
         psl = psl_s.copy()
         if b.size:
             p, _ = eng._refine(exact, red, b, flats, region)
