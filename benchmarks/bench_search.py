@@ -162,13 +162,16 @@ def main():
 
         path = Path(args.json)
         data = json.loads(path.read_text()) if path.exists() else {}
-        data["bench_search"] = {
-            "machine": f"{platform.machine()}, Python {platform.python_version()}",
-            "date": time.strftime("%Y-%m-%d"),
-            "seed": args.seed,
-            "workers": args.workers,
-            **RESULTS,
-        }
+        entry = data.setdefault("bench_search", {})  # --only keeps the other case's figures
+        entry.update(
+            {
+                "machine": f"{platform.machine()}, Python {platform.python_version()}",
+                "date": time.strftime("%Y-%m-%d"),
+                "seed": args.seed,
+                "workers": args.workers,
+                **RESULTS,
+            }
+        )
         path.write_text(json.dumps(data, indent=2) + "\n")
 
 
