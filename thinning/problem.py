@@ -216,14 +216,7 @@ class ThinningProblem:
         gene_of_orbit = np.full(n_orb, -1)
         gene_of_orbit[free_orbits] = np.arange(free_orbits.size)
         self.site_gene = gene_of_orbit[orbit_id]
-        self.engine = FFTPatternEngine(
-            self.sites.grid_shape,
-            self.sites.lattice.grid_pitch,
-            self.wavelength,
-            self.scan_max,
-            self.oversampling,
-            linear=self.sites.lattice.kind == "linear",
-        )
+        self.engine = self._make_engine()
         if self.robust is not None:
             self._init_robust()
 
@@ -246,14 +239,18 @@ class ThinningProblem:
             ph += np.round(command / lsb) * lsb - command  # ...to within one step
         self._robust_weights = (amp * np.exp(1j * ph)).astype(np.complex64)
         self._robust_priority = rng.random((t, m))  # which active elements fail first
-        self.robust_engine = FFTPatternEngine(
+        self.robust_engine = self._make_engine(full=True)
+
+    def _make_engine(self, full: bool = False) -> FFTPatternEngine:
+        """The FFT engine on the sites' index grid (full plane for complex excitations)."""
+        return FFTPatternEngine(
             self.sites.grid_shape,
             self.sites.lattice.grid_pitch,
             self.wavelength,
             self.scan_max,
             self.oversampling,
             linear=self.sites.lattice.kind == "linear",
-            full=True,
+            full=full,
         )
 
     # -- genomes ----------------------------------------------------------------------------

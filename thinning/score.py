@@ -62,9 +62,16 @@ def _clean(x, digits=6):
 
 
 def layout_engine(
-    layout: Layout, wavelength: float, scan_max: float, oversampling: float = 4.0, workers: int = -1
+    layout: Layout,
+    wavelength: float,
+    scan_max: float,
+    oversampling: float = 4.0,
+    workers: int = -1,
+    full: bool = False,
 ):
     """The pattern engine for a layout, its excitation and its exact evaluator.
+
+    ``full`` keeps the whole u-v period on a grid (for off-centre sidelobe discs).
 
     Returns
     -------
@@ -84,6 +91,7 @@ def layout_engine(
             oversampling,
             linear=fit.linear,
             workers=workers,
+            full=full,
         )
         return eng, grid, eng.exact(grid), fit
     eng = DirectPatternEngine(

@@ -41,6 +41,7 @@ from .exact import GridExact, refine_peaks
 from .lattice import generated_lattice, grating_lobe_positions
 from .layout import Layout
 from .pattern import DirectPatternEngine, FFTPatternEngine
+from .score import layout_engine
 from .units import to_db
 from .units import wavelength as wavelength_of
 
@@ -107,35 +108,11 @@ class _Array:
     def __init__(self, layout: Layout, wavelength: float, oversampling: float = 4.0):
         self.layout = layout
         self.wavelength = wavelength
-        self.fit = layout.grid_fit()
+        self.engine, self.grid, self._exact, self.fit = layout_engine(
+            layout, wavelength, 0.0, oversampling, full=True
+        )
+        self.step = (self.engine.grid.du, self.engine.grid.dv)
         fit = self.fit
-        if fit is not None:
-            rows, cols = fit.shape
-            self.grid = np.zeros((rows, cols))
-            self.grid[fit.row, fit.col] = layout.weights
-            self.engine = FFTPatternEngine(
-                (rows, cols),
-                fit.pitch,
-                wavelength,
-                0.0,
-                oversampling,
-                linear=fit.linear,
-                full=True,
-                workers=-1,
-            )
-            self.step = (self.engine.grid.du, self.engine.grid.dv)
-        else:
-            self.grid = None
-            self.engine = DirectPatternEngine(
-                layout.x,
-                layout.y,
-                layout.weights,
-                wavelength,
-                0.0,
-                oversampling,
-                linear=layout.is_linear,
-            )
-            self.step = (self.engine.grid.du, self.engine.grid.dv)
         self.linear = fit.linear if fit is not None else layout.is_linear
 
     def basis(self):
@@ -164,9 +141,7 @@ class _Array:
         return d
 
     def exact(self):
-        if self.grid is not None:
-            return self.engine.exact(self.grid)
-        return self.engine.pexact
+        return self._exact
 
     def directivity(self, q, steer):
         if self.fit is not None:

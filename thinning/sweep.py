@@ -39,7 +39,6 @@ from .io.atomic import atomic_write, atomic_write_json
 from .io.layout_csv import write_layout_csv
 from .layout import Layout
 from .metrics import expected_asl_random
-from .score import score_layout
 from .spec import Spec, load_spec
 from .units import to_db
 
@@ -297,19 +296,11 @@ def density_expected_asl(problem, spec: Spec) -> float:
 
 
 def _filled_figures(spec: Spec, sites) -> dict:
-    lay = Layout.from_sites(sites)
-    r = score_layout(
-        lay,
-        spec.frequency,
-        spec.scan_max,
-        spec.element_exponent,
-        sites=len(sites),
-        oversampling=spec.oversampling,
-    )
+    _, r = score_spec_layout(spec, sites, np.ones(len(sites), dtype=bool))
     return {
-        "psl_db": r.psl_db,
-        "asl_db": r.asl_db,
-        "directivity_dbi": r.directivity_dbi,
+        "psl_db": r["psl_db"],
+        "asl_db": r["asl_db"],
+        "directivity_dbi": r["directivity_dbi"],
         "elements": len(sites),
     }
 
