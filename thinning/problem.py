@@ -33,6 +33,8 @@ SYMMETRIES = ("none", "mirror-x", "mirror-y", "mirror-xy", "rotate-180")
 OBJECTIVES = ("psl", "asl")
 #: Patterns per FFT batch. Fixed, so that a population is cut into the same batches whatever
 #: the number of worker processes, and the results are bit-identical for any ``--workers``.
+#: a base layout this many genes (or fewer) from the last one is updated, not transformed
+SWAP_ADVANCE_GENES = 4
 BATCH = 16
 
 
@@ -94,6 +96,127 @@ def outer_ring(sites: Sites) -> np.ndarray:
             ]
         )
     return edge
+
+
+class _SwapBase:
+    """One layout's stored transform, power and sidelobe region, shared by its swap moves.
+
+    Parameters
+    ----------
+    engine : FFTPatternEngine
+    genome : (G,) bool
+    grid : (R, C) array   the layout's excitation grid
+    f0 : (nr, nc) complex array, optional   its stored transform (computed if not given)
+    ww_cache : dict, optional   W = fft2(w) by main-beam cut, shared between layouts
+    """
+
+    def __init__(self, engine, genome, grid, f0=None, ww_cache=None):
+        region = engine.region
+        g = region.grid
+        self.engine, self.genome = engine, genome
+        self.ww_cache = {} if ww_cache is None else ww_cache  # W by main-beam cut
+        self.grid = np.ascontiguousarray(grid, dtype=np.float64)
+        if f0 is None:
+            f0 = engine.transform(self.grid.astype(np.float32))[0].astype(np.complex128)
+        self.f0 = f0
+        self.f_parts = np.ascontiguousarray(f0.ravel().view(np.float64).reshape(-1, 2))
+        self.p0 = (f0.real**2 + f0.imag**2).ravel()
+        red = region.reduce(self.p0[None])
+        self.weff = region.effective_weight(red, 0)
+        self.inside = self.weff > 0
+        self.peak = float(red.peak[0])  # a swap keeps Σa, so the beam peak
+        win = red.windows[0]
+        self.pos = np.full(g.nr * g.nc, -1, dtype=np.int64)
+        self.pos[win.flat] = np.arange(win.flat.size)
+        self.removed = np.asarray(red.main_beam_weight[0], dtype=np.float64)
+        self.cut = (win.radius, self.removed.tobytes())  # the main-beam cut, for reuse
+        amp = np.sqrt(self.p0)
+        self.amp = amp
+        self.top = float(amp[self.inside].max()) if self.inside.any() else 0.0
+        self.wsum = float(self.weff.sum())
+        self.total = float(self.weff @ self.p0)
+        self._ext = {}
+        self._hx = None
+        self._ww = None
+
+    def twiddles(self):
+        """exp(−2πi t/Pr) and exp(−2πi t/Pc) for t < P, complex and as (P, 2) real and
+        imaginary parts (kept with the W cache, which lives as long as the problem)."""
+        if "twiddles" not in self.ww_cache:
+            pr, pc = self.engine.pad
+            tr = np.exp(-2j * np.pi * np.arange(pr) / pr)
+            tc = np.exp(-2j * np.pi * np.arange(pc) / pc)
+            self.ww_cache["twiddles"] = (
+                tr,
+                tc,
+                np.ascontiguousarray(np.column_stack([tr.real, tr.imag])),
+                np.ascontiguousarray(np.column_stack([tc.real, tc.imag])),
+            )
+        return self.ww_cache["twiddles"]
+
+    def advance(self, genome, rows, cols, signs) -> _SwapBase:
+        """The layout with the grid sites (rows, cols) switched by ±1 (``signs``): its
+        transform by the separable updates F += ±exp(−2πi(s·j/Pr + c·i/Pc)), no FFT; the
+        ASL transform H likewise by shifted copies of W while the main-beam cut stays."""
+        pr, pc = self.engine.pad
+        g = self.engine.region.grid
+        s_idx = np.arange(g.nr)
+        c_idx = np.arange(g.nc)
+        tr, tc = self.twiddles()[:2]
+        f0 = self.f0.copy()
+        grid = self.grid.copy()
+        for j, i, sg in zip(rows, cols, signs, strict=True):
+            ey = sg * tr[(s_idx * j) % pr]
+            ex = tc[(c_idx * i) % pc]
+            f0 += ey[:, None] * ex[None, :]
+            grid[j, i] += sg
+        new = _SwapBase(self.engine, genome, grid, f0, self.ww_cache)
+        if new.cut == self.cut and self._ww is not None:
+            new._ww = self._ww
+            if self._hx is not None:
+                # H'[j, i] = H[j, i] + Σ ±W[j − j_s, i − i_s] on the grid's own block
+                nr, nc = self._hx.shape
+                hx = self._hx.copy()
+                for j, i, sg in zip(rows, cols, signs, strict=True):
+                    hx += sg * self._ww[np.ix_((np.arange(nr) - j) % pr, (np.arange(nc) - i) % pc)]
+                new._hx = hx
+        return new
+
+    def ext(self, w: int) -> np.ndarray:
+        """Samples that can hold the highest or a candidate lobe of a move switching w sites
+        each way, with their neighbours."""
+        if w not in self._ext:
+            from .pattern import MARGIN_DB
+
+            eng = self.engine
+            dmax = 2.0 * w
+            margin = MARGIN_DB[1] if eng.linear else MARGIN_DB[0]
+            low = max(0.0, (self.top - dmax) * 10 ** (-margin / 20) - dmax)
+            near = np.flatnonzero(self.inside & (self.amp >= low))
+            nbr = eng.region.fast_tables(np.float64)[9]  # the 8 neighbours of each sample
+            ext = np.unique(np.concatenate([near, nbr[near].ravel()]))
+            self._ext[w] = ext[ext >= 0].astype(np.int64)
+        return self._ext[w]
+
+    def asl_transforms(self):
+        """For the moves' ASL: H = fft2(w·conj(F)) on the excitation grid's block (the only
+        place it is read) and W = fft2(w) on the whole padded grid (read at differences)."""
+        import scipy.fft
+
+        g = self.engine.region.grid
+        pad = self.engine.pad
+        wgrid = self.weff.reshape(g.nr, g.nc)
+        if self._ww is None:
+            self._ww = self.ww_cache.get(self.cut)
+            if self._ww is None:
+                if len(self.ww_cache) >= 8:
+                    self.ww_cache.clear()
+                self._ww = self.ww_cache[self.cut] = scipy.fft.fft2(wgrid, s=pad)
+        if self._hx is None:  # pruned: only the block [:R, :C] is transformed along rows
+            r, c = self.grid.shape
+            t = scipy.fft.fft(wgrid * np.conj(self.f0), n=pad[1], axis=1)[:, :c]
+            self._hx = scipy.fft.fft(t, n=pad[0], axis=0)[:r]
+        return self._hx, self._ww
 
 
 @dataclass
@@ -372,16 +495,16 @@ class ThinningProblem:
 
         Switching the site at grid index (j, i) on or off adds ±exp(−2πi(r·j/Pr + c·i/Pc))
         to transform sample (r, c): a separable term, so no FFT per move. With one transform
-        of the base layout:
+        of the base layout (kept while the same layout is asked about again):
 
         * the sample PSL of a move can only come from samples within 2w of the base's
           highest amplitude (w sites switched each way, each changing any sample by at most
           1), so the update is computed on those samples and their neighbours only;
         * its ASL is exact from two more transforms of the base, Σ w·conj(F)·e and Σ w·e,
           read at the switched sites (O(1) per move);
-        * its candidate lobes are refined on the exact pattern as in :meth:`evaluate`, the
-          base's array factor shared by every move (:class:`thinning.exact.SwapExact`).
+        * its candidate lobes are refined on the exact pattern as in :meth:`evaluate`.
 
+        The updates, candidates and refinement run in :func:`thinning.fastpath.swap_scores`.
         The main-beam cut is the base layout's (one swap barely moves the first null); the
         figures agree with :meth:`evaluate` of the swapped layouts to float32 rounding
         (checked in the tests). A robust problem falls back to :meth:`evaluate`.
@@ -391,11 +514,8 @@ class ThinningProblem:
         base_genome : (G,) bool
         off_genes, on_genes : (K,) int   gene switched off (on) by each move; must be on (off)
         """
-        import scipy.fft
-
-        from .exact import SwapExact
+        from . import fastpath
         from .pattern import FAST_CANDIDATES, MARGIN_DB
-        from .region import Reduction, SparsePower
 
         base = np.asarray(base_genome, dtype=bool)
         off = np.atleast_1d(np.asarray(off_genes, dtype=np.int64))
@@ -407,14 +527,7 @@ class ThinningProblem:
             genomes[np.arange(k_moves), on] = True
             return self.evaluate(genomes)
         eng, region = self.engine, self.engine.region
-        g = region.grid
-        pr, pc = eng.pad
-        grid0 = self.sites.to_grid(self.to_masks(base).astype(np.float32))
-        f0 = eng.transform(grid0)[0].astype(np.complex128)  # (nr, nc)
-        p0 = (f0.real**2 + f0.imag**2).ravel()
-        red0 = region.reduce(p0[None])
-        weff = region.effective_weight(red0, 0)
-        peak = float(red0.peak[0])  # a swap keeps Σa, so the beam peak
+        st = self._swap_base(base)
         # the switched sites: grid indices and signs, (K, S)
         table = self.gene_sites()
         w = int(self.orbit_size[self.gene_orbit[np.concatenate([off, on])]].max())
@@ -425,63 +538,80 @@ class ThinningProblem:
         r0, c0 = self.sites.grid_corner
         jj = self.sites.row[site] - r0
         ii = self.sites.col[site] - c0
-        # samples that can hold a move's highest or candidate lobe, with their neighbours
-        amp = np.sqrt(p0)
-        inside = weff > 0
-        dmax = 2.0 * w
-        top = float(amp[inside].max()) if inside.any() else 0.0
+        ext = st.ext(w)
         margin = MARGIN_DB[1] if eng.linear else MARGIN_DB[0]
-        low = max(0.0, (top - dmax) * 10 ** (-margin / 20) - dmax)
-        near = np.flatnonzero(inside & (amp >= low))
-        s_, c_ = np.divmod(near, g.nc)
-        r_ = g.signed_rows[s_]
-        ring = [near] + [
-            g.neighbour(r_, c_, dr, dc)
-            for dr in (-1, 0, 1)
-            for dc in (-1, 0, 1)
-            if (dr or dc) and (g.nr > 1 or dr == 0)
-        ]
-        ext = np.unique(np.concatenate(ring))
-        ext = ext[ext >= 0]
-        es, ec = np.divmod(ext, g.nc)
-        phase = es[None, None, :] * jj[..., None] / pr + ec[None, None, :] * ii[..., None] / pc
-        delta = np.einsum("ks,ksn->kn", sign, np.exp(-2j * np.pi * phase))
-        new = f0.ravel()[ext][None, :] + delta
-        vals = new.real**2 + new.imag**2
-        power = SparsePower(p0, ext, vals)
-        # sample PSL of every move over the base's sidelobe region
-        pm = np.where(inside[ext][None, :], vals, -1.0)
-        arg = ext[np.argmax(pm, axis=1)]
-        psl_s = pm.max(axis=1).astype(np.float64) / peak
+        cap = FAST_CANDIDATES[1] if eng.linear else FAST_CANDIDATES[0]
+        tables = region.fast_tables(np.float64)
+        kx, ky = eng._phases()
+        psl, _ = fastpath.swap_scores(
+            st.p0,
+            ext,
+            st.f_parts[ext],
+            ext // region.grid.nc,
+            ext % region.grid.nc,
+            st.inside[ext],
+            *st.twiddles()[2:],
+            st.grid,
+            jj.astype(np.int64),
+            ii.astype(np.int64),
+            sign,
+            st.peak,
+            cap,
+            10 ** (-margin / 10),
+            tables[0],
+            st.pos,
+            st.removed,
+            tables[9],
+            tables[10],
+            tables[11],
+            tables[12],
+            kx,
+            ky,
+            eng.linear,
+        )
         # exact ASL: Σ w|F + Δ|² = Σ w|F|² + 2 Re Σ_s ±H(j_s, i_s) + Σ_{s,t} ±± W(j_s − j_t, ...)
-        wgrid = weff.reshape(g.nr, g.nc)
-        hx = scipy.fft.fft2(wgrid * np.conj(f0), s=(pr, pc))
-        ww = scipy.fft.fft2(wgrid, s=(pr, pc))
-        cross = 2 * np.real(np.sum(sign * hx[jj % pr, ii % pc], axis=1))
+        hx, ww = st.asl_transforms()
+        pr, pc = eng.pad
+        cross = 2 * np.real(np.sum(sign * hx[jj, ii], axis=1))
         dj = (jj[:, :, None] - jj[:, None, :]) % pr
         di = (ii[:, :, None] - ii[:, None, :]) % pc
         quad = np.real(np.einsum("ks,kt,kst->k", sign, sign, ww[dj, di]))
-        wsum = float(weff.sum())
-        asl = (float(weff @ p0) + cross + quad) / wsum / peak
-        red = Reduction(
-            peak=np.full(k_moves, peak),
-            psl=psl_s,
-            asl=asl,
-            argmax=arg,
-            main_beam_weight=[red0.main_beam_weight[0]] * k_moves,
-            windows=[red0.windows[0]] * k_moves,
-        )
-        base_exact = eng.exact(grid0)
-        exact = SwapExact(base_exact, jj, ii, sign, np.full(k_moves, peak))
-        cap = FAST_CANDIDATES[1] if eng.linear else FAST_CANDIDATES[0]
-        b, flats = region.candidates(power, red, margin, cap)
-        psl = psl_s.copy()
-        if b.size:
-            p, _ = eng._refine(exact, red, b, flats, region)
-            np.maximum.at(psl, b, p)
+        asl = (st.total + cross + quad) / st.wsum / st.peak
         psl_db = 10 * np.log10(psl)
         asl_db = 10 * np.log10(asl)
         return Evaluation(self.combine(psl_db, asl_db), psl_db, asl_db)
+
+    def _swap_base(self, base) -> _SwapBase:
+        """The stored transform and figures of a base layout for :meth:`evaluate_swaps`.
+
+        The last layout asked about is kept; a layout a few genes away from it (the move a
+        local search just accepted) is derived from it by separable updates, without an FFT.
+        """
+        st = getattr(self, "_swap_cache", None)
+        if st is not None and np.array_equal(st.genome, base):
+            return st
+        if st is not None:
+            gone = np.flatnonzero(st.genome & ~base)
+            come = np.flatnonzero(~st.genome & base)
+            if 0 < gone.size + come.size <= SWAP_ADVANCE_GENES:
+                sites = np.concatenate([self.gene_sites()[gone], self.gene_sites()[come]])
+                sign = np.concatenate(
+                    [-np.ones_like(self.gene_sites()[gone]), np.ones_like(self.gene_sites()[come])]
+                )
+                keep = sites >= 0
+                sites, sign = sites[keep], sign[keep]
+                r0, c0 = self.sites.grid_corner
+                st = st.advance(
+                    base.copy(), self.sites.row[sites] - r0, self.sites.col[sites] - c0, sign
+                )
+                self._swap_cache = st
+                return st
+        grid = self.sites.to_grid(self.to_masks(base).astype(np.float32))[0]
+        if getattr(self, "_ww_cache", None) is None:
+            self._ww_cache = {}
+        st = _SwapBase(self.engine, base.copy(), grid, ww_cache=self._ww_cache)
+        self._swap_cache = st
+        return st
 
     def combine(self, psl_db, asl_db) -> np.ndarray:
         """The objective J from PSL and ASL  [dB]."""

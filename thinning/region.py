@@ -253,7 +253,6 @@ class SampledRegion:
             count = principal.astype(float)
         mult = grid.col_mult[None, :]
         self.weight = (count * mult).ravel()
-        self.weight32 = self.weight.astype(np.float32)
         self.w0 = (principal * mult).ravel()
         self.total_weight = float(self.weight.sum())
         self.in_disc = count.ravel() > 0
@@ -321,6 +320,64 @@ class SampledRegion:
         self._windows[radius] = w
         return w
 
+    # -- tables for the compiled route ------------------------------------------------------
+    def fast_tables(self, dtype=np.float32) -> tuple:
+        """The region and its first main-beam window as flat arrays, for
+        :func:`thinning.fastpath.fast_scores` (cached; the sample weights in ``dtype``)."""
+        dtype = np.dtype(dtype)
+        if getattr(self, "_fast", None) is None:
+            self._fast = {}
+        if dtype not in self._fast:
+            g = self.grid
+            win = self.window()
+            if np.any(win.parent[1:] >= np.arange(1, win.parent.size)):
+                raise AssertionError("a window sample comes before its parent")
+            n = g.nr * g.nc
+            pos = np.full(n, -1, dtype=np.int64)
+            pos[win.flat] = np.arange(win.flat.size)
+            s, c = np.divmod(np.arange(n), g.nc)
+            r = g.signed_rows[s]
+            nbr = np.full((n, 8), -1, dtype=np.int64)
+            offsets = [(dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1) if dr or dc]
+            for k, (dr, dc) in enumerate(offsets):
+                if g.nr > 1 or dr == 0:
+                    nbr[:, k] = g.neighbour(r, c, dr, dc)
+            tu, tv = g.period if g.periodic else (0.0, None)
+            reach = self.radius + math.hypot(*self.centre)
+            n_v = 0 if (not g.periodic or tv is None) else int(math.ceil(reach / tv)) + 1
+            geom = np.array(
+                [
+                    g.nc,
+                    g.du,
+                    g.dv,
+                    1.0 if g.periodic else 0.0,
+                    tu,
+                    0.0 if tv is None else tv,
+                    n_v,
+                    self.radius,
+                    self.centre[0],
+                    self.centre[1],
+                    12,  # Newton iterations, as refine_peaks
+                    self.total_weight,
+                ]
+            )
+            self._fast[dtype] = (
+                self.weight.astype(dtype),
+                win.outer_mask.astype(dtype),
+                win.flat.astype(np.int64),
+                win.parent.astype(np.int64),
+                np.asarray(win.rim, dtype=np.bool_),
+                win.weight.astype(np.float64),
+                win.w0.astype(np.float64),
+                pos,
+                bool(win.capped),
+                nbr,
+                g.signed_rows.astype(np.int64),
+                g.signed_cols.astype(np.int64),
+                geom,
+            )
+        return self._fast[dtype]
+
     # -- reductions -----------------------------------------------------------------------
     def reduce(self, power: np.ndarray) -> Reduction:
         """PSL (on the samples) and ASL of a stack of power patterns.
@@ -364,9 +421,9 @@ class SampledRegion:
         w_arg = in_win.argmax(axis=1)
         o_max = outer[np.arange(len(idx)), o_arg].astype(np.float64)
         w_max = in_win[np.arange(len(idx)), w_arg].astype(np.float64)
-        weight = self.weight32 if p.dtype == np.float32 else self.weight
-        # einsum, not BLAS: a threaded gemv is erratic on a loaded machine for this size
-        total = np.einsum("ij,j->i", p, weight).astype(np.float64)
+        # einsum, not BLAS: a threaded gemv is erratic on a loaded machine for this size;
+        # summed in float64 (as the compiled route does) whatever the samples' precision
+        total = np.einsum("ij,j->i", p, self.weight, dtype=np.float64)
         total -= (removed * pw).sum(axis=1, dtype=np.float64)
         wsum = self.total_weight - removed.sum(axis=1)
         peak = out.peak[idx]

@@ -92,6 +92,7 @@ def layout_engine(
             linear=fit.linear,
             workers=workers,
             full=full,
+            compiled=False,  # a few evaluations: not worth loading the compiled loops
         )
         return eng, grid, eng.exact(grid), fit
     eng = DirectPatternEngine(

@@ -37,9 +37,13 @@ def _init_worker(problem):
     _WORKER_PROBLEM = problem
 
 
-def _evaluate_batch(genomes):
-    ev = _WORKER_PROBLEM.evaluate(genomes)
-    return ev.psl_db, ev.asl_db
+def _evaluate_chunks(packed, n_genes):
+    """Figures of several chunks of genomes, each sent as packed bits (one round trip)."""
+    out = []
+    for p in packed:
+        ev = _WORKER_PROBLEM.evaluate(np.unpackbits(p, axis=1, count=n_genes).astype(bool))
+        out.append((ev.psl_db, ev.asl_db))
+    return out
 
 
 @dataclass
@@ -149,19 +153,24 @@ class Tracker:
         """Evaluate genomes (B, G); counts them and keeps the best."""
         g = np.atleast_2d(np.asarray(genomes, dtype=bool))
         if self._pool is not None and g.shape[0] > BATCH:
-            # this process evaluates every workers-th batch itself, the pool the others
+            # chunks of BATCH genomes: this process evaluates every workers-th chunk itself;
+            # each other worker gets its share in one message, as packed bits
             chunks = [g[s : s + BATCH] for s in range(0, g.shape[0], BATCH)]
+            shares = {w: list(range(w, len(chunks), self.workers)) for w in range(1, self.workers)}
             futures = {
-                i: self._pool.submit(_evaluate_batch, c)
-                for i, c in enumerate(chunks)
-                if i % self.workers
+                w: self._pool.submit(
+                    _evaluate_chunks, [np.packbits(chunks[i], axis=1) for i in idx], g.shape[1]
+                )
+                for w, idx in shares.items()
+                if idx
             }
             parts = {}
             for i in range(0, len(chunks), self.workers):
                 ev_i = self.problem.evaluate(chunks[i])
                 parts[i] = (ev_i.psl_db, ev_i.asl_db)
-            for i, f in futures.items():
-                parts[i] = f.result()
+            for w, f in futures.items():
+                for i, part in zip(shares[w], f.result(), strict=True):
+                    parts[i] = part
             psl = np.concatenate([parts[i][0] for i in range(len(chunks))])
             asl = np.concatenate([parts[i][1] for i in range(len(chunks))])
             ev = Evaluation(self.problem.combine(psl, asl), psl, asl)
