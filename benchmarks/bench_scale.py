@@ -28,7 +28,6 @@ import json
 import math
 import os
 import platform
-import resource
 import statistics
 import subprocess
 import sys
@@ -171,17 +170,33 @@ def bench_workers():
     return out
 
 
+#: Runs a command and writes its peak RSS (KiB) to a file. A child forked from this large
+#: benchmark process would count this process's pages in its own peak; one forked from this
+#: small launcher counts only the launcher's few MiB.
+_LAUNCHER = (
+    "import resource, subprocess, sys, time\n"
+    "t = time.perf_counter()\n"
+    "r = subprocess.run(sys.argv[2:])\n"
+    "t = time.perf_counter() - t\n"
+    "rss = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss\n"
+    "open(sys.argv[1], 'w').write(f'{t} {rss}')\n"
+    "sys.exit(r.returncode)\n"
+)
+
+
 def run_measured(cmd):
-    """Run a command; wall time and the child's peak RSS (MiB, from getrusage)."""
-    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    t = time.perf_counter()
-    r = subprocess.run(cmd, capture_output=True, text=True)
-    wall = time.perf_counter() - t
-    peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    if r.returncode != 0:
-        raise SystemExit(f"{' '.join(cmd)} failed: {r.stderr.strip()[-300:]}")
-    # ru_maxrss is the largest child so far (KiB on Linux): run the big ones first
-    return wall, max(peak, before) / 1024, r.stdout
+    """Run a command; its wall time (timed by the launcher) and its own peak RSS (MiB)."""
+    with tempfile.TemporaryDirectory() as d:
+        rss_file = Path(d) / "rss"
+        r = subprocess.run(
+            [sys.executable, "-S", "-c", _LAUNCHER, str(rss_file), *cmd],
+            capture_output=True,
+            text=True,
+        )
+        if r.returncode != 0:
+            raise SystemExit(f"{' '.join(cmd)} failed: {r.stderr.strip()[-300:]}")
+        wall, rss = rss_file.read_text().split()
+        return float(wall), int(rss) / 1024, r.stdout  # ru_maxrss: KiB on Linux
 
 
 def bench_scale(quick):
@@ -193,7 +208,7 @@ def bench_scale(quick):
         for j in range(256):
             f.write("".join(f"{i * 15:.6f},{j * 15:.6f}\n" for i in range(256)))
     res = {}
-    # each measurement in a fresh process; the bare script first (smallest peak)
+    # each measurement in a fresh process
     wall_b, rss_b, out_b = run_measured(
         [sys.executable, str(HERE / "bare_score.py"), str(csv_path), "10", "30"]
     )

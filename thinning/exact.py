@@ -22,7 +22,7 @@ import math
 
 import numpy as np
 
-__all__ = ["GridExact", "PointExact", "SwapExact", "refine_peaks"]
+__all__ = ["GridExact", "PointExact", "refine_peaks"]
 
 #: Elements × points per chunk of the direct sum (complex128: 16 bytes each, so 64 MB).
 CHUNK = 1 << 22
@@ -135,57 +135,6 @@ class GridExact:
         f_yy = np.einsum("mr,mr->m", ey * jky**2, t[..., 0])  # AF_vv
         f = np.stack([f_x[:, 0], f_x[:, 1], f_y[:, 0], f_x[:, 2], f_yy, f_y[:, 1]], axis=-1)
         return f, n
-
-
-class SwapExact:
-    """Exact pattern of K variants of one grid excitation, each switching a few sites.
-
-    Variant k adds ``sign[k, s]`` at grid index (row[k, s], col[k, s]) to the base grid; its
-    array factor is the base one plus a short sum, so one shared evaluation of the base serves
-    every variant.
-
-    Parameters
-    ----------
-    base : GridExact   of the single base pattern
-    row, col : (K, S) int arrays   grid indices of the switched sites
-    sign : (K, S) array   +1 on, −1 off, 0 padding
-    norm : (K,) array   |Σa|² of each variant
-    """
-
-    def __init__(self, base: GridExact, row, col, sign, norm):
-        self.base = base
-        self.kx = base.kx[np.asarray(col)]  # (K, S)
-        self.ky = base.ky[np.asarray(row)]
-        self.sign = np.asarray(sign, dtype=float)
-        self.norm = np.asarray(norm, dtype=float)
-
-    def evaluate(self, u, v, which=None, derivatives=True):
-        u = np.atleast_1d(np.asarray(u, dtype=float))
-        v = np.atleast_1d(np.asarray(v, dtype=float))
-        which = np.zeros(u.size, dtype=np.int64) if which is None else np.asarray(which)
-        f, _ = self.base.components(u, v, None, derivatives)
-        kx, ky, sg = self.kx[which], self.ky[which], self.sign[which]  # (m, S)
-        e = sg * np.exp(1j * (kx * u[:, None] + ky * v[:, None]))
-        if derivatives:
-            jx, jy = 1j * kx, 1j * ky
-            f = f + np.stack(
-                [
-                    e.sum(1),
-                    (e * jx).sum(1),
-                    (e * jy).sum(1),
-                    (e * jx**2).sum(1),
-                    (e * jy**2).sum(1),
-                    (e * jx * jy).sum(1),
-                ],
-                axis=-1,
-            )
-        else:
-            f = f + e.sum(1)[:, None]
-        n = self.norm[which]
-        if not derivatives:
-            return np.abs(f[:, 0]) ** 2 / n
-        p, g, h = _combine(f)
-        return p / n, g / n[:, None], h / n[:, None, None]
 
 
 class PointExact:

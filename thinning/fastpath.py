@@ -4,8 +4,9 @@ The search scores whole generations with :meth:`thinning.pattern.FFTPatternEngin
 After the FFT the numpy route takes a dozen passes over every pattern (main-beam chains,
 masked maxima, weighted sums, a neighbour test for every candidate lobe, the alias of each
 candidate, a vectorised Newton climb); each pass is cheap, but together they cost two to
-twelve times the transform (benchmarks/bench_engine.py). This module does the same work in one compiled loop per pattern, with the same
-rules, so that the figures agree with the numpy route (checked in tests/test_fastpath.py):
+twelve times the transform (benchmarks/bench_engine.py). This module does the same work in
+one compiled loop per pattern, with the same rules, so that the figures agree with the numpy
+route (checked in tests/test_fastpath.py):
 
 1. the main beam, walking the window samples nearest first (every sample's parent on its ray
    comes before it): a sample is main beam when it is no higher than its parent and its
@@ -26,7 +27,8 @@ rules, so that the figures agree with the numpy route (checked in tests/test_fas
 :func:`swap_scores` does steps 3 and 4 for K swap moves of one layout, whose samples differ
 from the layout's only at a few stored places (:meth:`thinning.problem.ThinningProblem.
 evaluate_swaps`). Patterns whose main beam reaches the rim of the first window are flagged for
-the numpy route, which widens the window. Everything runs on the CPU in the calling thread.
+the numpy route, which widens the window. Everything runs on the CPU in the calling thread,
+without the GIL (so that the thread feeding the worker processes keeps running meanwhile).
 """
 
 from __future__ import annotations
@@ -324,7 +326,7 @@ def _power_pass(f, out, weight, outer):
     return total, o_max
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def fast_scores(
     f,
     grids,
@@ -523,7 +525,7 @@ def fast_scores(
     return psl, asl, uv, status, refined
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def swap_scores(
     base,
     ext,

@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["SampleGrid", "SampledRegion", "Reduction", "SparsePower"]
+__all__ = ["SampleGrid", "SampledRegion", "Reduction"]
 
 #: Radius of the first main-beam window, in samples per oversampling factor. The first null
 #: of a uniformly filled aperture lies about one oversampling factor of samples from the peak;
@@ -183,32 +183,6 @@ class Reduction:
     main_beam_weight: list
     windows: list
     groups: list | None = None  # per distinct window: (window, members, removed weights)
-
-
-class SparsePower:
-    """The power samples of K variants of one pattern that differ from it on a few samples.
-
-    Parameters
-    ----------
-    base : (N,) array   the shared pattern
-    ext : (E,) int      storage indices where the variants differ (sorted)
-    vals : (K, E) array their values there
-    """
-
-    def __init__(self, base, ext, vals):
-        self.base, self.ext, self.vals = base, ext, vals
-        self.pos = np.full(base.size, -1, dtype=np.int64)
-        self.pos[ext] = np.arange(ext.size)
-
-    def get(self, b, flat):
-        p = self.pos[flat]
-        return np.where(p >= 0, self.vals[b, np.maximum(p, 0)], self.base[flat])
-
-    def above(self, thr):
-        """(variant, storage index) of every sample at or above the variant's threshold;
-        the caller guarantees that no sample outside ``ext`` qualifies."""
-        b, e = np.nonzero(self.vals >= thr[:, None])
-        return b, self.ext[e]
 
 
 class SampledRegion:
@@ -490,19 +464,14 @@ class SampledRegion:
                                within each pattern
         """
         g = self.grid
-        if isinstance(power, SparsePower):
-            get, above = power.get, power.above
-        else:
-            power = np.atleast_2d(power)
+        power = np.atleast_2d(power)
 
-            def get(b, flat):
-                return power[b, flat]
-
-            def above(thr):
-                return np.nonzero(power >= thr[:, None].astype(power.dtype))
+        def get(b, flat):
+            return power[b, flat]
 
         top = red.psl * red.peak
-        b, idx = above(top * 10 ** (-margin_db / 10))
+        thr = top * 10 ** (-margin_db / 10)
+        b, idx = np.nonzero(power >= thr[:, None].astype(power.dtype))
         ok = (top[b] > 0) & self._eligible(red, b, idx)
         b, idx = b[ok], idx[ok]
         s, c = np.divmod(idx, g.nc)
