@@ -1,9 +1,11 @@
 #!/usr/bin/env python3
 """Speed and memory at scale, each figure measured in this one run and printed.
 
-1. Swap moves: K single-swap moves of a 64 × 64 half-filled lattice scored by updating the
-   stored transform (``ThinningProblem.evaluate_swaps``) against full evaluations of the
-   same layouts, one by one and as one batch; and the largest PSL difference.
+1. Swap moves: K single-swap moves of a 64 × 64 half-filled lattice scored from the stored
+   transform (``ThinningProblem.evaluate_swaps``) against full evaluations of the same
+   layouts, one by one and as one batch: with the base's transform kept, after an accepted
+   move, on a new base, over a local search; and the largest PSL difference. Then the time
+   per swap move and per full evaluation as a 20 s genetic run spends them.
 2. Workers: one generation of 64 and of 128 genomes (64 × 64 lattice) evaluated with
    ``--workers 1`` and ``--workers 2``: the speed-up.
 3. Scale: ``thinning score`` of a 65,536-site (256 × 256) layout against a bare script that
@@ -92,14 +94,12 @@ def bench_swaps():
     # (c) a new base, nothing kept
     def cold():
         p._swap_cache = None
-        p._ww_cache = None
         p.evaluate_swaps(g, off, on)
 
     t_cold = timed(cold, 9) / k
     # (d) a local search as the genetic method runs it: batches of 64 moves, the best
     # accepted when it improves the objective; every move's time counted
     p._swap_cache = None
-    p._ww_cache = None
     base = p.random_genomes(rng, 1)[0]
     value = float(p.evaluate(base[None]).objective[0])
     accepted = 0
@@ -114,6 +114,33 @@ def bench_swaps():
     t_climb = (time.perf_counter() - t) / (40 * k)
     t_batch = timed(lambda: p.evaluate(trial)) / k
     t_single = timed(lambda: p.evaluate(trial[:1]), 20)
+    # (e) inside a genetic run (20 s): the time per swap move and per full evaluation, as
+    # the search itself spends them (its bases are optimised layouts, whose many near-peak
+    # lobes make a move dearer than on the random layout above)
+    from thinning.search import run_method
+
+    spent = {"swap": [0.0, 0], "full": [0.0, 0]}
+    q = ThinningProblem(sites, len(sites) // 2, 0.03, math.radians(20))
+    full_eval, swap_eval = q.evaluate, q.evaluate_swaps
+
+    def counted_full(genomes):
+        t0 = time.perf_counter()
+        out = full_eval(genomes)
+        spent["full"][0] += time.perf_counter() - t0
+        spent["full"][1] += len(np.atleast_2d(genomes))
+        return out
+
+    def counted_swaps(base, off_genes, on_genes):
+        t0 = time.perf_counter()
+        out = swap_eval(base, off_genes, on_genes)
+        spent["swap"][0] += time.perf_counter() - t0
+        spent["swap"][1] += len(off_genes)
+        return out
+
+    q.evaluate, q.evaluate_swaps = counted_full, counted_swaps
+    run = run_method(q, "genetic", 1, {}, time_limit_s=20, workers=1)
+    ga_full = spent["full"][0] / spent["full"][1]
+    ga_swap = spent["swap"][0] / spent["swap"][1]
     d = max(
         float(np.abs(p.evaluate_swaps(g, off, on).psl_db - p.evaluate(trial).psl_db).max()),
         float(np.abs(ev.psl_db - p.evaluate(tr).psl_db).max()),
@@ -135,6 +162,13 @@ def bench_swaps():
         "speedup_new_base_vs_batched_full": t_batch / t_cold,
         "speedup_in_climb_vs_batched_full": t_batch / t_climb,
         "max_psl_difference_db": d,
+        "genetic_run_s": 20,
+        "genetic_run_psl_db": run.psl_db,
+        "genetic_full_evaluations": spent["full"][1],
+        "genetic_swap_moves": spent["swap"][1],
+        "genetic_full_ms_per_layout": ga_full * 1e3,
+        "genetic_swap_ms_per_move": ga_swap * 1e3,
+        "genetic_swap_speedup": ga_full / ga_swap,
     }
 
 
@@ -273,6 +307,12 @@ def main():
         f"{s['speedup_new_base_vs_batched_full']:.1f}x (new base), "
         f"{s['speedup_in_climb_vs_batched_full']:.1f}x (local search) than one in a batch; "
         f"max PSL difference {s['max_psl_difference_db']:.2e} dB"
+    )
+    print(
+        f"  inside a {s['genetic_run_s']} s genetic run (PSL {s['genetic_run_psl_db']:.2f} dB): "
+        f"{s['genetic_full_evaluations']:,} full evaluations at "
+        f"{s['genetic_full_ms_per_layout']:.4f} ms, {s['genetic_swap_moves']:,} swap moves at "
+        f"{s['genetic_swap_ms_per_move']:.4f} ms -> {s['genetic_swap_speedup']:.1f}x"
     )
     w = bench_workers()
     for r in w:

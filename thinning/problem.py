@@ -107,57 +107,86 @@ class _SwapBase:
     genome : (G,) bool
     grid : (R, C) array   the layout's excitation grid
     f0 : (nr, nc) complex array, optional   its stored transform (computed if not given)
-    ww_cache : dict, optional   W = fft2(w) by main-beam cut, shared between layouts
+    shared : dict, optional   what every layout of the problem shares (twiddle factors, the
+        transform of the region weights), filled on first use
     """
 
-    def __init__(self, engine, genome, grid, f0=None, ww_cache=None):
+    def __init__(self, engine, genome, grid, f0=None, shared=None):
+        from . import fastpath
+
         region = engine.region
         g = region.grid
         self.engine, self.genome = engine, genome
-        self.ww_cache = {} if ww_cache is None else ww_cache  # W by main-beam cut
+        self.shared = {} if shared is None else shared
         self.grid = np.ascontiguousarray(grid, dtype=np.float64)
         if f0 is None:
             f0 = engine.transform(self.grid.astype(np.float32))[0].astype(np.complex128)
         self.f0 = f0
         self.f_parts = np.ascontiguousarray(f0.ravel().view(np.float64).reshape(-1, 2))
         self.p0 = (f0.real**2 + f0.imag**2).ravel()
-        red = region.reduce(self.p0[None])
-        self.weff = region.effective_weight(red, 0)
+        self.peak = float(self.p0[0])  # a swap keeps Σa, so the beam peak
+        t = region.fast_tables(np.float64)
+        removed, over = fastpath.main_beam_cut(self.p0, t[2], t[3], t[4], t[6], t[8])
+        if over:  # a main beam wider than the first window: the numpy route widens it
+            red = region.reduce(self.p0[None])
+            win, removed = red.windows[0], red.main_beam_weight[0]
+            self.pos = np.full(g.nr * g.nc, -1, dtype=np.int64)
+            self.pos[win.flat] = np.arange(win.flat.size)
+        else:
+            win = region.window()
+            self.pos = t[7]
+        self.removed = np.asarray(removed, dtype=np.float64)
+        self.weff = region.weight.copy()
+        self.weff[win.flat] -= self.removed
         self.inside = self.weff > 0
-        self.peak = float(red.peak[0])  # a swap keeps Σa, so the beam peak
-        win = red.windows[0]
-        self.pos = np.full(g.nr * g.nc, -1, dtype=np.int64)
-        self.pos[win.flat] = np.arange(win.flat.size)
-        self.removed = np.asarray(red.main_beam_weight[0], dtype=np.float64)
-        self.cut = (win.radius, self.removed.tobytes())  # the main-beam cut, for reuse
         amp = np.sqrt(self.p0)
         self.amp = amp
         self.top = float(amp[self.inside].max()) if self.inside.any() else 0.0
         self.wsum = float(self.weff.sum())
         self.total = float(self.weff @ self.p0)
+        # for the moves' ASL: the layout's elements and its main-beam samples
+        on_r, on_c = np.nonzero(self.grid)
+        self.on = (on_r.astype(np.int64), on_c.astype(np.int64), self.grid[on_r, on_c].copy())
+        mb = self.removed > 0
+        flats = win.flat[mb]
+        self.main_beam = (
+            (flats // g.nc).astype(np.int64),
+            (flats % g.nc).astype(np.int64),
+            self.removed[mb],
+            np.ascontiguousarray(self.f_parts[flats]),
+        )
+        self.h_cache = np.zeros(self.grid.shape + (2,))
+        self.h_have = np.zeros(self.grid.shape, dtype=np.bool_)
         self._ext = {}
-        self._hx = None
-        self._ww = None
 
     def twiddles(self):
         """exp(−2πi t/Pr) and exp(−2πi t/Pc) for t < P, complex and as (P, 2) real and
-        imaginary parts (kept with the W cache, which lives as long as the problem)."""
-        if "twiddles" not in self.ww_cache:
+        imaginary parts."""
+        if "twiddles" not in self.shared:
             pr, pc = self.engine.pad
             tr = np.exp(-2j * np.pi * np.arange(pr) / pr)
             tc = np.exp(-2j * np.pi * np.arange(pc) / pc)
-            self.ww_cache["twiddles"] = (
+            self.shared["twiddles"] = (
                 tr,
                 tc,
                 np.ascontiguousarray(np.column_stack([tr.real, tr.imag])),
                 np.ascontiguousarray(np.column_stack([tc.real, tc.imag])),
             )
-        return self.ww_cache["twiddles"]
+        return self.shared["twiddles"]
+
+    def region_transform(self):
+        """Ŵ = fft2(region weights) on the padded grid, (Pr, Pc, 2) real and imaginary."""
+        if "region" not in self.shared:
+            import scipy.fft
+
+            g = self.engine.region.grid
+            w = scipy.fft.fft2(self.engine.region.weight.reshape(g.nr, g.nc), s=self.engine.pad)
+            self.shared["region"] = np.ascontiguousarray(np.stack([w.real, w.imag], axis=-1))
+        return self.shared["region"]
 
     def advance(self, genome, rows, cols, signs) -> _SwapBase:
         """The layout with the grid sites (rows, cols) switched by ±1 (``signs``): its
-        transform by the separable updates F += ±exp(−2πi(s·j/Pr + c·i/Pc)), no FFT; the
-        ASL transform H likewise by shifted copies of W while the main-beam cut stays."""
+        transform by the separable updates F += ±exp(−2πi(s·j/Pr + c·i/Pc)), no FFT."""
         pr, pc = self.engine.pad
         g = self.engine.region.grid
         s_idx = np.arange(g.nr)
@@ -170,17 +199,7 @@ class _SwapBase:
             ex = tc[(c_idx * i) % pc]
             f0 += ey[:, None] * ex[None, :]
             grid[j, i] += sg
-        new = _SwapBase(self.engine, genome, grid, f0, self.ww_cache)
-        if new.cut == self.cut and self._ww is not None:
-            new._ww = self._ww
-            if self._hx is not None:
-                # H'[j, i] = H[j, i] + Σ ±W[j − j_s, i − i_s] on the grid's own block
-                nr, nc = self._hx.shape
-                hx = self._hx.copy()
-                for j, i, sg in zip(rows, cols, signs, strict=True):
-                    hx += sg * self._ww[np.ix_((np.arange(nr) - j) % pr, (np.arange(nc) - i) % pc)]
-                new._hx = hx
-        return new
+        return _SwapBase(self.engine, genome, grid, f0, self.shared)
 
     def ext(self, w: int) -> np.ndarray:
         """Samples that can hold the highest or a candidate lobe of a move switching w sites
@@ -198,25 +217,22 @@ class _SwapBase:
             self._ext[w] = ext[ext >= 0].astype(np.int64)
         return self._ext[w]
 
-    def asl_transforms(self):
-        """For the moves' ASL: H = fft2(w·conj(F)) on the excitation grid's block (the only
-        place it is read) and W = fft2(w) on the whole padded grid (read at differences)."""
-        import scipy.fft
+    def asl_change(self, rows, cols, signs):
+        """Σ w|F + Δ|² − Σ w|F|² of each move (:func:`thinning.fastpath.swap_asl_terms`)."""
+        from . import fastpath
 
-        g = self.engine.region.grid
-        pad = self.engine.pad
-        wgrid = self.weff.reshape(g.nr, g.nc)
-        if self._ww is None:
-            self._ww = self.ww_cache.get(self.cut)
-            if self._ww is None:
-                if len(self.ww_cache) >= 8:
-                    self.ww_cache.clear()
-                self._ww = self.ww_cache[self.cut] = scipy.fft.fft2(wgrid, s=pad)
-        if self._hx is None:  # pruned: only the block [:R, :C] is transformed along rows
-            r, c = self.grid.shape
-            t = scipy.fft.fft(wgrid * np.conj(self.f0), n=pad[1], axis=1)[:, :c]
-            self._hx = scipy.fft.fft(t, n=pad[0], axis=0)[:r]
-        return self._hx, self._ww
+        cross, quad = fastpath.swap_asl_terms(
+            *self.on,
+            self.region_transform(),
+            *self.main_beam,
+            *self.twiddles()[2:],
+            rows,
+            cols,
+            signs,
+            self.h_cache,
+            self.h_have,
+        )
+        return cross + quad
 
 
 @dataclass
@@ -500,8 +516,10 @@ class ThinningProblem:
         * the sample PSL of a move can only come from samples within 2w of the base's
           highest amplitude (w sites switched each way, each changing any sample by at most
           1), so the update is computed on those samples and their neighbours only;
-        * its ASL is exact from two more transforms of the base, Σ w·conj(F)·e and Σ w·e,
-          read at the switched sites (O(1) per move);
+        * its ASL is exact: Σ w|F + Δ|² − Σ w|F|² = 2 Re Σ_s ±H(x_s) + Σ_{s,t} ±± W(x_s − x_t),
+          with W the transform of the region weights (one per problem, less the main beam's
+          few samples) and H(x) = Σ_m a_m W(x − m) at the switched sites only
+          (:func:`thinning.fastpath.swap_asl_terms`);
         * its candidate lobes are refined on the exact pattern as in :meth:`evaluate`.
 
         The updates, candidates and refinement run in :func:`thinning.fastpath.swap_scores`.
@@ -538,6 +556,7 @@ class ThinningProblem:
         r0, c0 = self.sites.grid_corner
         jj = self.sites.row[site] - r0
         ii = self.sites.col[site] - c0
+        rows, cols = jj.astype(np.int64), ii.astype(np.int64)
         ext = st.ext(w)
         margin = MARGIN_DB[1] if eng.linear else MARGIN_DB[0]
         cap = FAST_CANDIDATES[1] if eng.linear else FAST_CANDIDATES[0]
@@ -552,8 +571,8 @@ class ThinningProblem:
             st.inside[ext],
             *st.twiddles()[2:],
             st.grid,
-            jj.astype(np.int64),
-            ii.astype(np.int64),
+            rows,
+            cols,
             sign,
             st.peak,
             cap,
@@ -570,13 +589,7 @@ class ThinningProblem:
             eng.linear,
         )
         # exact ASL: Σ w|F + Δ|² = Σ w|F|² + 2 Re Σ_s ±H(j_s, i_s) + Σ_{s,t} ±± W(j_s − j_t, ...)
-        hx, ww = st.asl_transforms()
-        pr, pc = eng.pad
-        cross = 2 * np.real(np.sum(sign * hx[jj, ii], axis=1))
-        dj = (jj[:, :, None] - jj[:, None, :]) % pr
-        di = (ii[:, :, None] - ii[:, None, :]) % pc
-        quad = np.real(np.einsum("ks,kt,kst->k", sign, sign, ww[dj, di]))
-        asl = (st.total + cross + quad) / st.wsum / st.peak
+        asl = (st.total + st.asl_change(rows, cols, sign)) / st.wsum / st.peak
         psl_db = 10 * np.log10(psl)
         asl_db = 10 * np.log10(asl)
         return Evaluation(self.combine(psl_db, asl_db), psl_db, asl_db)
@@ -607,9 +620,9 @@ class ThinningProblem:
                 self._swap_cache = st
                 return st
         grid = self.sites.to_grid(self.to_masks(base).astype(np.float32))[0]
-        if getattr(self, "_ww_cache", None) is None:
-            self._ww_cache = {}
-        st = _SwapBase(self.engine, base.copy(), grid, ww_cache=self._ww_cache)
+        if getattr(self, "_swap_shared", None) is None:
+            self._swap_shared = {}
+        st = _SwapBase(self.engine, base.copy(), grid, shared=self._swap_shared)
         self._swap_cache = st
         return st
 
