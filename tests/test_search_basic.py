@@ -283,3 +283,24 @@ def test_density_taper_lowers_mean_asl(skolnik_sherman_ogg_1964):
     asl_u = problem.evaluate(draw(problem, p_u, rng, 50)).asl_db.mean()
     assert metrics.expected_asl_tapered(p_t) < metrics.expected_asl_tapered(p_u)
     assert asl_t < asl_u - 0.4
+
+
+def test_worker_processes_give_the_same_figures_and_survive_an_error():
+    """A generation split between this process and a worker process on a pipe gives the
+    figures of one process (math: the same evaluation per chunk); a failed evaluation
+    raises in the caller, and the worker's unread answer does not leak into the next one."""
+    from thinning.search import Tracker
+
+    p = ThinningProblem(_rect_sites(), 30, LAM, math.radians(10))
+    g = p.random_genomes(np.random.default_rng(2), 40)
+    alone = p.evaluate(g)
+    with Tracker(p, workers=2) as tr:
+        first = tr.evaluate(g)
+        with pytest.raises((ValueError, IndexError)):
+            tr.evaluate(np.ones((40, p.n_genes - 3), dtype=bool))  # too short for this problem
+        again = tr.evaluate(g[::-1])
+        worker = tr._pool[0].proc
+        assert worker.is_alive()
+    assert not worker.is_alive()  # closed with the tracker
+    np.testing.assert_array_equal(first.psl_db, alone.psl_db)
+    np.testing.assert_array_equal(again.psl_db, alone.psl_db[::-1])

@@ -13,10 +13,10 @@ short by the time limit or by Ctrl-C still has a result.
 
 from __future__ import annotations
 
+import multiprocessing
 import os
 import signal
 import time
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -44,6 +44,68 @@ def _evaluate_chunks(packed, n_genes):
         ev = _WORKER_PROBLEM.evaluate(np.unpackbits(p, axis=1, count=n_genes).astype(bool))
         out.append((ev.psl_db, ev.asl_db))
     return out
+
+
+def _worker_loop(conn, problem):
+    """A worker process: evaluate each message (packed chunks) and send the figures back,
+    until the parent sends None or goes away."""
+    _init_worker(problem)
+    while True:
+        try:
+            msg = conn.recv()
+        except (EOFError, OSError):
+            break
+        if msg is None:
+            break
+        try:
+            conn.send(_evaluate_chunks(*msg))
+        except Exception as exc:  # the parent re-raises it
+            conn.send(exc)
+    conn.close()
+
+
+class _Worker:
+    """One worker process on a pipe of its own: a message and its answer cross without the
+    thread hops of an executor (0.9 ms a round trip there on a busy 2-core machine)."""
+
+    def __init__(self, problem):
+        ctx = multiprocessing.get_context()
+        self.conn, child = ctx.Pipe()
+        self.proc = ctx.Process(target=_worker_loop, args=(child, problem), daemon=True)
+        self.proc.start()
+        child.close()
+        self.pending = 0  # messages sent whose answer has not been read
+
+    def submit(self, packed, n_genes):
+        while self.pending:  # an answer left unread by an interrupted evaluation
+            self._recv()
+        self.conn.send((packed, n_genes))
+        self.pending += 1
+
+    def _recv(self):
+        try:
+            out = self.conn.recv()
+        except EOFError:
+            raise RuntimeError(f"worker process {self.proc.pid} ended unexpectedly") from None
+        self.pending -= 1
+        return out
+
+    def result(self):
+        out = self._recv()
+        if isinstance(out, Exception):
+            raise out
+        return out
+
+    def close(self):
+        try:
+            self.conn.send(None)
+        except (OSError, ValueError):
+            pass
+        self.proc.join(timeout=2)
+        if self.proc.is_alive():
+            self.proc.terminate()
+            self.proc.join()
+        self.conn.close()
 
 
 @dataclass
@@ -109,14 +171,13 @@ class Tracker:
         self._pool = None
         if self.workers > 1:
             # this process is one of the workers: the pool holds the other workers − 1
-            self._pool = ProcessPoolExecutor(
-                self.workers - 1, initializer=_init_worker, initargs=(problem,)
-            )
+            self._pool = [_Worker(problem) for _ in range(self.workers - 1)]
 
     # -- lifecycle ------------------------------------------------------------------------
     def close(self):
         if self._pool is not None:
-            self._pool.shutdown(wait=False, cancel_futures=True)
+            for w in self._pool:
+                w.close()
             self._pool = None
 
     def __enter__(self):
@@ -157,19 +218,16 @@ class Tracker:
             # each other worker gets its share in one message, as packed bits
             chunks = [g[s : s + BATCH] for s in range(0, g.shape[0], BATCH)]
             shares = {w: list(range(w, len(chunks), self.workers)) for w in range(1, self.workers)}
-            futures = {
-                w: self._pool.submit(
-                    _evaluate_chunks, [np.packbits(chunks[i], axis=1) for i in idx], g.shape[1]
-                )
-                for w, idx in shares.items()
-                if idx
-            }
+            busy = [w for w, idx in shares.items() if idx]
+            for w in busy:
+                packed = [np.packbits(chunks[i], axis=1) for i in shares[w]]
+                self._pool[w - 1].submit(packed, g.shape[1])
             parts = {}
             for i in range(0, len(chunks), self.workers):
                 ev_i = self.problem.evaluate(chunks[i])
                 parts[i] = (ev_i.psl_db, ev_i.asl_db)
-            for w, f in futures.items():
-                for i, part in zip(shares[w], f.result(), strict=True):
+            for w in busy:
+                for i, part in zip(shares[w], self._pool[w - 1].result(), strict=True):
                     parts[i] = part
             psl = np.concatenate([parts[i][0] for i in range(len(chunks))])
             asl = np.concatenate([parts[i][1] for i in range(len(chunks))])
