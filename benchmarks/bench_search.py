@@ -15,9 +15,12 @@
 Usage::
 
     python benchmarks/bench_search.py [--quick] [--evaluations N] [--workers N] [--seed S]
+                                      [--seeds N] [--only haupt|planar] [--json FILE]
 
 ``--evaluations`` sets the budget of every run (default 60 000 for (a), 20 000 for (b));
-``--quick`` divides the defaults by 10.
+``--quick`` divides the defaults by 10. ``--seeds N`` (default 5) adds genetic runs of case
+(b) for seeds 1..N with their scored PSL and its mean (one seed is one sample of a random
+search). ``--json`` merges the figures into FILE (e.g. benchmarks/results.json).
 """
 
 from __future__ import annotations
@@ -136,6 +139,17 @@ def planar(args, evaluations):
             f"{method:<9} {res.psl_db:11.2f} {score.psl_db:10.2f} {score.asl_db:8.2f} "
             f"{res.evaluations:7d} {seconds:6.1f}  {res.stopped_by}"
         )
+    if args.seeds > 1:  # the spread of the genetic search over seeds 1..N
+        scored = []
+        for seed in range(1, args.seeds + 1):
+            _, score, _ = _run(problem, "genetic", seed, evaluations, args.workers)
+            scored.append(score.psl_db)
+        RESULTS["planar_genetic_seeds"] = {"seeds": args.seeds, "psl_score_db": scored}
+        print(
+            f"genetic, seeds 1-{args.seeds}: scored PSL "
+            + ", ".join(f"{x:.2f}" for x in scored)
+            + f" dB; mean {np.mean(scored):.2f} dB"
+        )
 
 
 def main():
@@ -144,6 +158,9 @@ def main():
     ap.add_argument("--evaluations", type=int, help="evaluations per run (both cases)")
     ap.add_argument("--workers", type=int, default=1, help="evaluation processes")
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument(
+        "--seeds", type=int, default=5, help="case (b): also run genetic for seeds 1..N"
+    )
     ap.add_argument("--only", choices=("haupt", "planar"), help="run one case only")
     ap.add_argument("--json", default=None, help="merge the figures into this JSON file")
     args = ap.parse_args()
