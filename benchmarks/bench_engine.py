@@ -6,7 +6,7 @@ oversampling this prints, per evaluation:
 
 * the bare ``scipy.fft.rfft2`` of the same padded grid (float32),
 * the engine's transform alone (the pruned two-step FFT),
-* a full evaluation (transform, sidelobe region, main-beam cut, peak and mean, the 3 best
+* a full evaluation (transform, sidelobe region, main-beam cut, peak and mean, the best
   candidate lobes refined on the exact pattern) — what the search calls — by the compiled
   route (thinning/fastpath.py, the default) and by the numpy route (the same figures),
 * a detailed evaluation (every candidate lobe refined) — what ``thinning score`` reports,
@@ -121,7 +121,7 @@ def main():
         )
     print(
         "times per grid; 'evaluate' = transform, sidelobe region, main-beam cut, peak and "
-        "mean, refinement of the 3 best candidate lobes on the exact pattern, by the compiled "
+        "mean, refinement of the best candidate lobes on the exact pattern, by the compiled "
         "route; 'numpy rt' = the same by the numpy route"
     )
     if args.json:

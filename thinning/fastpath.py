@@ -339,6 +339,30 @@ def _power_pass(f, out, weight, outer):
     return total, o_max
 
 
+@njit(cache=True)
+def _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok):
+    """Main-beam membership ``ok`` of the samples of the first window (of those stacked) that
+    holds the main beam of pattern ``p``; returns that window's index and whether the beam
+    outgrew every window."""
+    nlev = w_capped.size
+    for lev in range(nlev):
+        a0, nw = w_start[lev], w_start[lev + 1] - w_start[lev]
+        ok[0] = True
+        for i in range(1, nw):
+            q = w_parent[a0 + i]
+            ok[i] = ok[q] and p[w_flat[a0 + i]] <= p[w_flat[a0 + q]]
+        if w_capped[lev]:
+            return lev, False
+        over = False
+        for i in range(nw):
+            if ok[i] and w_rim[a0 + i]:
+                over = True
+                break
+        if not over:
+            return lev, False
+    return nlev - 1, True
+
+
 @njit(cache=True, nogil=True)
 def fast_scores(
     f,
@@ -347,18 +371,19 @@ def fast_scores(
     cap,
     margin,
     weight,
-    outer,
+    nbr,
+    srows,
+    scols,
+    geom,
+    outer_all,
     w_flat,
     w_parent,
     w_rim,
     w_weight,
     w_w0,
-    w_pos,
-    capped,
-    nbr,
-    srows,
-    scols,
-    geom,
+    w_pos_all,
+    w_capped,
+    w_start,
     kx,
     ky,
     linear,
@@ -375,12 +400,10 @@ def fast_scores(
     refine : bool                refine the candidate lobes on the exact pattern
     cap : int                    candidates refined per pattern
     margin : float  [1]          candidates within this power ratio of the highest sample
-    weight, outer, w_* , capped  the region and its first main-beam window, in f's precision
-                                 (:meth:`thinning.region.SampledRegion.fast_tables`)
-    nbr : (N, 8) int             neighbours of each sample (−1: none)
-    srows, scols                 signed row and column of each storage row and column
-    geom : (12,) float           nc, du, dv, periodic, tu, tv, n_v aliases, radius, cu, cv,
-                                 Newton iterations, Σ weight
+    weight, nbr, srows, scols, geom    the region (:class:`thinning.region.FastTables`;
+                                 the weights in f's precision)
+    outer_all, w_*               its main-beam windows, each twice the last, one after the
+                                 other (:attr:`thinning.region.FastTables.levels`)
     kx, ky : float arrays  [rad]  the exact pattern's phase per unit u (v) of each column (row)
     linear : bool                one row along x: refine along u only
     work_p, work_i : (≥ N,) arrays of f's dtype and int64   work space
@@ -389,7 +412,8 @@ def fast_scores(
     -------
     psl, asl : (B,) float  [1]   normalised to the beam peak
     uv : (B, 2) float  [1]
-    status : (B,) int   0 done, 1 the main beam reaches the window's rim (use the numpy route)
+    status : (B,) int   0 done, 1 the main beam outgrows every window (not expected: the
+                        last one spans the grid; use the numpy route)
     refined : (B,) int  candidate lobes refined
     """
     nb, n = f.shape[0], f.shape[1] // 2
@@ -400,14 +424,17 @@ def fast_scores(
     nqv = int(geom[6])
     radius, cu, cv = geom[7], geom[8], geom[9]
     iterations = int(geom[10])
-    nw = w_flat.size
+    nlev = w_capped.size
+    wmax = 0
+    for lev in range(nlev):
+        wmax = max(wmax, w_start[lev + 1] - w_start[lev])
     psl = np.zeros(nb)
     asl = np.zeros(nb)
     uv = np.zeros((nb, 2))
     status = np.zeros(nb, dtype=np.int64)
     refined = np.zeros(nb, dtype=np.int64)
-    ok = np.zeros(nw, dtype=np.bool_)
-    removed = np.zeros(nw)
+    ok = np.zeros(wmax, dtype=np.bool_)
+    removed_all = np.zeros(wmax)
     cand = np.zeros(max(cap, 1), dtype=np.int64)
     est = np.zeros((max(cap, 1), 3))
     ws = np.empty((6, grids.shape[2]))
@@ -416,32 +443,31 @@ def fast_scores(
     above = work_i[:n]  # the samples within the margin of its top
     weight_sum = geom[11]
     for b in range(nb):
-        total, o_max = _power_pass(f[b], p, weight, outer)
+        total, o_max = _power_pass(f[b], p, weight, outer_all[0])
         peak = float(p[0])
-        # 1. main beam: one pass, parents first
-        ok[0] = True
-        for i in range(1, nw):
-            q = w_parent[i]
-            ok[i] = ok[q] and p[w_flat[i]] <= p[w_flat[q]]
-        over = False
-        if not capped:
-            for i in range(nw):
-                if ok[i] and w_rim[i]:
-                    over = True
-                    break
+        # 1. main beam: one pass, parents first, in the first window that holds it
+        lev, over = _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok)
         if over:
             status[b] = 1
             continue
+        a0, nw = w_start[lev], w_start[lev + 1] - w_start[lev]
+        outer = outer_all[lev]
+        w_pos = w_pos_all[lev]
+        removed = removed_all[:nw]
+        if lev > 0:  # a wider window: the highest sample outside it, again
+            o_max = 0.0
+            for j in range(n):
+                o_max = max(o_max, float(p[j] * outer[j]))
         # 2. sample PSL and ASL
         w_max, w_arg = 0.0, 0
         rsum = 0.0
         for i in range(nw):
-            r = w_w0[i] if ok[i] else 0.0
+            r = w_w0[a0 + i] if ok[i] else 0.0
             removed[i] = r
-            pj = float(p[w_flat[i]])
+            pj = float(p[w_flat[a0 + i]])
             total -= r * pj
             rsum += r
-            if w_weight[i] - r > 0 and pj > w_max:
+            if w_weight[a0 + i] - r > 0 and pj > w_max:
                 w_max, w_arg = pj, i
         top = max(o_max, w_max)
         # the samples within the margin of the top (candidates, and the top's own place)
@@ -454,7 +480,7 @@ def fast_scores(
                     arg = j
                     break
         else:
-            arg = w_flat[w_arg]
+            arg = w_flat[a0 + w_arg]
         wsum = weight_sum - rsum
         asl[b] = total / wsum / peak if wsum > 0 else 0.0
         psl[b] = top / peak
@@ -823,20 +849,18 @@ def swap_asl_terms(
 
 
 @njit(cache=True)
-def main_beam_cut(p, w_flat, w_parent, w_rim, w_w0, capped):
-    """Step 1 of the module docstring for one pattern: the weight the main beam takes from
-    each window sample, and whether the beam reaches the window's rim (then use the numpy
-    route)."""
-    nw = w_flat.size
-    ok = np.zeros(nw, dtype=np.bool_)
+def main_beam_cut(p, w_flat, w_parent, w_rim, w_w0, w_capped, w_start):
+    """Step 1 of the module docstring for one pattern: the window that holds its main beam,
+    the weight the main beam takes from each of its samples, and whether the beam outgrew
+    every window (then use the numpy route)."""
+    wmax = 0
+    for lev in range(w_capped.size):
+        wmax = max(wmax, w_start[lev + 1] - w_start[lev])
+    ok = np.zeros(wmax, dtype=np.bool_)
+    lev, over = _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok)
+    a0, nw = w_start[lev], w_start[lev + 1] - w_start[lev]
     removed = np.zeros(nw)
-    ok[0] = True
-    for i in range(1, nw):
-        q = w_parent[i]
-        ok[i] = ok[q] and p[w_flat[i]] <= p[w_flat[q]]
     for i in range(nw):
         if ok[i]:
-            if w_rim[i] and not capped:
-                return removed, True
-            removed[i] = w_w0[i]
-    return removed, False
+            removed[i] = w_w0[a0 + i]
+    return lev, removed, over

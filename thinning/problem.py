@@ -126,15 +126,17 @@ class _SwapBase:
         self.p0 = (f0.real**2 + f0.imag**2).ravel()
         self.peak = float(self.p0[0])  # a swap keeps Σa, so the beam peak
         t = region.fast_tables(np.float64)
-        removed, over = fastpath.main_beam_cut(self.p0, t[2], t[3], t[4], t[6], t[8])
-        if over:  # a main beam wider than the first window: the numpy route widens it
+        lev, removed, over = fastpath.main_beam_cut(
+            self.p0, t.w_flat, t.w_parent, t.w_rim, t.w_w0, t.w_capped, t.w_start
+        )
+        if over:  # not expected (the last window spans the grid): the numpy route
             red = region.reduce(self.p0[None])
             win, removed = red.windows[0], red.main_beam_weight[0]
             self.pos = np.full(g.nr * g.nc, -1, dtype=np.int64)
             self.pos[win.flat] = np.arange(win.flat.size)
         else:
-            win = region.window()
-            self.pos = t[7]
+            win = t.windows[lev]
+            self.pos = t.w_pos[lev]
         self.removed = np.asarray(removed, dtype=np.float64)
         self.weff = region.weight.copy()
         self.weff[win.flat] -= self.removed
@@ -212,7 +214,7 @@ class _SwapBase:
             margin = MARGIN_DB[1] if eng.linear else MARGIN_DB[0]
             low = max(0.0, (self.top - dmax) * 10 ** (-margin / 20) - dmax)
             near = np.flatnonzero(self.inside & (self.amp >= low))
-            nbr = eng.region.fast_tables(np.float64)[9]  # the 8 neighbours of each sample
+            nbr = eng.region.fast_tables(np.float64).nbr  # the 8 neighbours of each sample
             ext = np.unique(np.concatenate([near, nbr[near].ravel()]))
             self._ext[w] = ext[ext >= 0].astype(np.int64)
         return self._ext[w]
@@ -577,13 +579,13 @@ class ThinningProblem:
             st.peak,
             cap,
             10 ** (-margin / 10),
-            tables[0],
+            tables.weight,
             st.pos,
             st.removed,
-            tables[9],
-            tables[10],
-            tables[11],
-            tables[12],
+            tables.nbr,
+            tables.srows,
+            tables.scols,
+            tables.geom,
             kx,
             ky,
             eng.linear,

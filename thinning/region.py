@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["SampleGrid", "SampledRegion", "Reduction"]
+__all__ = ["SampleGrid", "SampledRegion", "Reduction", "FastTables"]
 
 #: Radius of the first main-beam window, in samples per oversampling factor. The first null
 #: of a uniformly filled aperture lies about one oversampling factor of samples from the peak;
@@ -185,6 +185,61 @@ class Reduction:
     groups: list | None = None  # per distinct window: (window, members, removed weights)
 
 
+@dataclass(frozen=True, eq=False)
+class FastTables:
+    """The region and its main-beam windows as flat arrays (:meth:`SampledRegion.fast_tables`).
+
+    Attributes
+    ----------
+    weight : (N,) array        region weight of each sample
+    nbr : (N, 8) int           its neighbours (−1: none), rows −1, 0, +1 by columns −1, 0, +1
+    srows, scols : int arrays  signed row (column) of each storage row (column)
+    geom : (12,) float         nc, du, dv, periodic, tu, tv, n_v aliases, radius, cu, cv,
+                               Newton iterations, Σ weight
+    outer : (L, N) array       1 for region samples outside window k, else 0
+    w_flat, w_parent, w_rim, w_weight, w_w0 : (Σ W_k,) arrays   the L windows one after the
+                               other (parents counted within their window)
+    w_pos : (L, N) int         position of each sample in window k (−1 outside)
+    w_capped : (L,) bool       window k spans the grid
+    w_start : (L + 1,) int     where window k starts in the stacked arrays
+    windows : tuple of the windows
+    """
+
+    weight: np.ndarray
+    nbr: np.ndarray
+    srows: np.ndarray
+    scols: np.ndarray
+    geom: np.ndarray
+    outer: np.ndarray
+    w_flat: np.ndarray
+    w_parent: np.ndarray
+    w_rim: np.ndarray
+    w_weight: np.ndarray
+    w_w0: np.ndarray
+    w_pos: np.ndarray
+    w_capped: np.ndarray
+    w_start: np.ndarray
+    windows: tuple
+
+    @property
+    def region(self) -> tuple:
+        return (self.weight, self.nbr, self.srows, self.scols, self.geom)
+
+    @property
+    def levels(self) -> tuple:
+        return (
+            self.outer,
+            self.w_flat,
+            self.w_parent,
+            self.w_rim,
+            self.w_weight,
+            self.w_w0,
+            self.w_pos,
+            self.w_capped,
+            self.w_start,
+        )
+
+
 class SampledRegion:
     """The sidelobe region (a disc in u-v, less the main beam) on a :class:`SampleGrid`.
 
@@ -295,20 +350,26 @@ class SampledRegion:
         return w
 
     # -- tables for the compiled route ------------------------------------------------------
-    def fast_tables(self, dtype=np.float32) -> tuple:
-        """The region and its first main-beam window as flat arrays, for
-        :func:`thinning.fastpath.fast_scores` (cached; the sample weights in ``dtype``)."""
+    def fast_tables(self, dtype=np.float32) -> FastTables:
+        """The region and its main-beam windows as flat arrays, for :mod:`thinning.fastpath`
+        (cached; the sample weights in ``dtype``)."""
         dtype = np.dtype(dtype)
         if getattr(self, "_fast", None) is None:
             self._fast = {}
         if dtype not in self._fast:
             g = self.grid
-            win = self.window()
-            if np.any(win.parent[1:] >= np.arange(1, win.parent.size)):
-                raise AssertionError("a window sample comes before its parent")
             n = g.nr * g.nc
-            pos = np.full(n, -1, dtype=np.int64)
-            pos[win.flat] = np.arange(win.flat.size)
+            # the windows the numpy route would try, in order: each twice the last, until one
+            # spans the grid
+            wins = [self.window()]
+            while not wins[-1].capped:
+                wins.append(self.window(2.0 * wins[-1].radius))
+            for win in wins:
+                if np.any(win.parent[1:] >= np.arange(1, win.parent.size)):
+                    raise AssertionError("a window sample comes before its parent")
+            pos = np.full((len(wins), n), -1, dtype=np.int64)
+            for k, win in enumerate(wins):
+                pos[k, win.flat] = np.arange(win.flat.size)
             s, c = np.divmod(np.arange(n), g.nc)
             r = g.signed_rows[s]
             nbr = np.full((n, 8), -1, dtype=np.int64)
@@ -335,20 +396,22 @@ class SampledRegion:
                     self.total_weight,
                 ]
             )
-            self._fast[dtype] = (
-                self.weight.astype(dtype),
-                win.outer_mask.astype(dtype),
-                win.flat.astype(np.int64),
-                win.parent.astype(np.int64),
-                np.asarray(win.rim, dtype=np.bool_),
-                win.weight.astype(np.float64),
-                win.w0.astype(np.float64),
-                pos,
-                bool(win.capped),
-                nbr,
-                g.signed_rows.astype(np.int64),
-                g.signed_cols.astype(np.int64),
-                geom,
+            self._fast[dtype] = FastTables(
+                weight=self.weight.astype(dtype),
+                nbr=nbr,
+                srows=g.signed_rows.astype(np.int64),
+                scols=g.signed_cols.astype(np.int64),
+                geom=geom,
+                outer=np.stack([w.outer_mask for w in wins]).astype(dtype),
+                w_flat=np.concatenate([w.flat for w in wins]).astype(np.int64),
+                w_parent=np.concatenate([w.parent for w in wins]).astype(np.int64),
+                w_rim=np.concatenate([np.asarray(w.rim, dtype=np.bool_) for w in wins]),
+                w_weight=np.concatenate([w.weight for w in wins]).astype(np.float64),
+                w_w0=np.concatenate([w.w0 for w in wins]).astype(np.float64),
+                w_pos=pos,
+                w_capped=np.array([w.capped for w in wins], dtype=np.bool_),
+                w_start=np.cumsum([0] + [w.flat.size for w in wins]).astype(np.int64),
+                windows=tuple(wins),
             )
         return self._fast[dtype]
 
