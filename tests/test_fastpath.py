@@ -10,6 +10,9 @@ and the compiled exact pattern must equal the direct sum of :class:`GridExact`.
 from __future__ import annotations
 
 import math
+import os
+import signal
+import time
 
 import numpy as np
 import pytest
@@ -198,3 +201,42 @@ def test_swap_moves_after_an_accepted_move_equal_full_evaluation():
     fresh = p.evaluate_swaps(g2, off2, on2)
     np.testing.assert_allclose(advanced.psl_db, fresh.psl_db, atol=1e-6)
     np.testing.assert_allclose(advanced.asl_db, fresh.asl_db, atol=1e-6)
+
+
+def test_ctrl_c_inside_a_kernel_is_an_interrupt():
+    """numba boxes a kernel's results in Python; a Ctrl-C landing there comes out as a
+    SystemError caused by the KeyboardInterrupt. ``call`` raises the interrupt itself (so the
+    search keeps its best layout), and leaves other errors alone."""
+
+    def interrupted():
+        try:
+            raise KeyboardInterrupt
+        except KeyboardInterrupt as exc:
+            raise SystemError("returned a result with an exception set") from exc
+
+    def broken():
+        raise SystemError("something else")
+
+    with pytest.raises(KeyboardInterrupt):
+        fastpath.call(interrupted)
+    with pytest.raises(SystemError):
+        fastpath.call(broken)
+    assert fastpath.call(lambda x: x + 1, 1) == 2
+
+
+def test_ctrl_c_during_a_first_call_waits_for_its_end():
+    """A kernel's first call compiles it; a Ctrl-C then would leave numba's half-built code
+    behind. ``call`` holds SIGINT back until the first call returns: the interrupt arrives,
+    but after the kernel finished."""
+    finished = []
+
+    def compiling(x):
+        os.kill(os.getpid(), signal.SIGINT)
+        time.sleep(0.05)  # the interrupt would land here if it were not held back
+        finished.append(x)
+        return x
+
+    with pytest.raises(KeyboardInterrupt):
+        fastpath.call(compiling, np.zeros(1))
+        time.sleep(0.05)  # the held interrupt is delivered now
+    assert len(finished) == 1

@@ -37,11 +37,60 @@ without the GIL (so that the thread feeding the worker processes keeps running m
 from __future__ import annotations
 
 import math
+import signal
+import threading
 
 import numpy as np
 from numba import njit
 
-__all__ = ["fast_scores", "swap_scores", "exact_point"]
+__all__ = ["call", "fast_scores", "swap_scores", "swap_asl_terms", "main_beam_cut", "exact_point"]
+
+
+#: (kernel, dtype of its first argument) already compiled or loaded in this process
+_READY: set = set()
+
+
+def call(kernel, *args):
+    """Run a compiled kernel.
+
+    The first call of a kernel for a dtype compiles it (or loads it from the disk cache): a
+    Ctrl-C in the middle of that leaves numba's half-built code behind, and the next call
+    fails. SIGINT is therefore held back until that call returns (a handler that only notes
+    it stands in meanwhile), and the interrupt then arrives at a clean point. A Ctrl-C that
+    lands while a kernel boxes its results in Python comes out of numba as a SystemError; it
+    is raised again as the KeyboardInterrupt it is. Either way a search stops with its best
+    layout instead of failing.
+    """
+    key = (kernel, getattr(args[0], "dtype", None) if args else None)
+    if key in _READY or threading.current_thread() is not threading.main_thread():
+        return _unwrap(kernel, args)
+    pending = []
+    previous = signal.signal(signal.SIGINT, lambda signum, frame: pending.append(signum))
+    try:
+        out = _unwrap(kernel, args)
+    finally:
+        signal.signal(signal.SIGINT, previous)
+    _READY.add(key)
+    if pending:
+        if callable(previous):
+            previous(signal.SIGINT, None)  # the default handler raises KeyboardInterrupt
+        elif previous == signal.SIG_DFL:
+            raise KeyboardInterrupt
+    return out
+
+
+def _unwrap(kernel, args):
+    try:
+        return kernel(*args)
+    except SystemError as exc:
+        seen, cause = set(), exc
+        while cause is not None and id(cause) not in seen:
+            if isinstance(cause, KeyboardInterrupt):
+                raise KeyboardInterrupt from exc
+            seen.add(id(cause))
+            cause = cause.__cause__ or cause.__context__
+        raise
+
 
 #: stopping tolerances of the Newton climb: step moved [samples], trust radius [samples],
 #: predicted gain [relative to the power] (refine_peaks: the same, with 1e-9 for the gain)

@@ -328,7 +328,8 @@ class FFTPatternEngine(_Engine):
         cap = FAST_CANDIDATES[1] if self.linear else FAST_CANDIDATES[0]
         kx, ky = self._phases()
         tables = region.fast_tables(parts.dtype)
-        psl, asl, uv, status, _ = fastpath.fast_scores(
+        psl, asl, uv, status, _ = fastpath.call(
+            fastpath.fast_scores,
             parts,
             grids,
             bool(refine),

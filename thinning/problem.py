@@ -126,8 +126,15 @@ class _SwapBase:
         self.p0 = (f0.real**2 + f0.imag**2).ravel()
         self.peak = float(self.p0[0])  # a swap keeps Σa, so the beam peak
         t = region.fast_tables(np.float64)
-        lev, removed, over = fastpath.main_beam_cut(
-            self.p0, t.w_flat, t.w_parent, t.w_rim, t.w_w0, t.w_capped, t.w_start
+        lev, removed, over = fastpath.call(
+            fastpath.main_beam_cut,
+            self.p0,
+            t.w_flat,
+            t.w_parent,
+            t.w_rim,
+            t.w_w0,
+            t.w_capped,
+            t.w_start,
         )
         if over:  # not expected (the last window spans the grid): the numpy route
             red = region.reduce(self.p0[None])
@@ -223,7 +230,8 @@ class _SwapBase:
         """Σ w|F + Δ|² − Σ w|F|² of each move (:func:`thinning.fastpath.swap_asl_terms`)."""
         from . import fastpath
 
-        cross, quad = fastpath.swap_asl_terms(
+        cross, quad = fastpath.call(
+            fastpath.swap_asl_terms,
             *self.on,
             self.region_transform(),
             *self.main_beam,
@@ -564,7 +572,8 @@ class ThinningProblem:
         cap = FAST_CANDIDATES[1] if eng.linear else FAST_CANDIDATES[0]
         tables = region.fast_tables(np.float64)
         kx, ky = eng._phases()
-        psl, _ = fastpath.swap_scores(
+        psl, _ = fastpath.call(
+            fastpath.swap_scores,
             st.p0,
             ext,
             st.f_parts[ext],
