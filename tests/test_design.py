@@ -218,12 +218,18 @@ def test_ctrl_c_on_the_command_writes_the_best_so_far(tmp_path):
         stderr=subprocess.PIPE,
         text=True,
     )
-    deadline = time.time() + 60
-    while time.time() < deadline and not out.exists():
-        time.sleep(0.1)
-    time.sleep(1.5)
+    # interrupt once the search has evaluated layouts (its first progress line; the first
+    # run after an install compiles the evaluation loops first)
+    lines = []
+    deadline = time.time() + 120
+    while time.time() < deadline:
+        line = proc.stderr.readline()
+        lines.append(line)
+        if "evaluations (" in line or not line:
+            break
     proc.send_signal(signal.SIGINT)
     stdout, stderr = proc.communicate(timeout=120)
+    stderr = "".join(lines) + stderr
     assert proc.returncode == 0, stderr
     assert "interrupt" in stdout
     assert len(read_layout_csv(out / "layout.csv")) == 40
