@@ -253,9 +253,52 @@ def _refine(
 
 
 @njit(cache=True)
-def _alias(flat, removed, nc, srows, scols, du, dv, periodic, tu, tv, nqv, radius, cu, cv):
+def _climb(a, kx, ky, norm, k, cand, est, floor, w_pos, removed, srows, scols, geom, linear, ws):
+    """Step 4 for candidates 0..k−1 of one pattern (best estimate first): each moved to its
+    alias in the disc and climbed on the exact pattern of the real grid ``a`` (|Σa|² =
+    ``norm``), skipping those whose estimate cannot reach the highest power found. Returns
+    that power (``floor`` if no candidate beat it) and where (NaN then)."""
+    du, dv = geom[1], geom[2]
+    radius, cu, cv = geom[7], geom[8], geom[9]
+    iterations = int(geom[10])
+    best, bu, bv = floor, np.nan, np.nan
+    for i in range(k):
+        if est[i, 0] < math.log(best) - _SKIP:
+            break  # this and the later (lower) lobes cannot reach the PSL found
+        j = cand[i]
+        u0, v0 = _alias(j, _removed_at(j, w_pos, removed), srows, scols, geom)
+        p, u, v = _refine(
+            a,
+            kx,
+            ky,
+            norm,
+            u0,
+            v0,
+            est[i, 1],
+            est[i, 2],
+            du,
+            dv,
+            radius,
+            cu,
+            cv,
+            linear,
+            iterations,
+            ws,
+            best,
+        )
+        if p > best:
+            best, bu, bv = p, u, v
+    return best, bu, bv
+
+
+@njit(cache=True)
+def _alias(flat, removed, srows, scols, geom):
     """The direction in the disc that sample ``flat`` stands for, nearest the disc's centre
-    (:meth:`thinning.region.SampledRegion.alias_points`)."""
+    (:meth:`thinning.region.SampledRegion.alias_points`); ``removed`` > 0 where the main
+    beam took the sample's own alias."""
+    nc, du, dv, periodic = int(geom[0]), geom[1], geom[2], geom[3] > 0
+    tu, tv, nqv = geom[4], geom[5], int(geom[6])
+    radius, cu, cv = geom[7], geom[8], geom[9]
     s, c = flat // nc, flat % nc
     u0 = scols[c] * du
     v0 = srows[s] * dv
@@ -466,13 +509,6 @@ def fast_scores(
     refined : (B,) int  candidate lobes refined
     """
     nb, n = f.shape[0], f.shape[1] // 2
-    nc = int(geom[0])
-    du, dv = geom[1], geom[2]
-    periodic = geom[3] > 0
-    tu, tv = geom[4], geom[5]
-    nqv = int(geom[6])
-    radius, cu, cv = geom[7], geom[8], geom[9]
-    iterations = int(geom[10])
     nlev = w_capped.size
     wmax = 0
     for lev in range(nlev):
@@ -533,22 +569,7 @@ def fast_scores(
         wsum = weight_sum - rsum
         asl[b] = total / wsum / peak if wsum > 0 else 0.0
         psl[b] = top / peak
-        ua, va = _alias(
-            arg,
-            _removed_at(arg, w_pos, removed),
-            nc,
-            srows,
-            scols,
-            du,
-            dv,
-            periodic,
-            tu,
-            tv,
-            nqv,
-            radius,
-            cu,
-            cv,
-        )
+        ua, va = _alias(arg, _removed_at(arg, w_pos, removed), srows, scols, geom)
         uv[b, 0], uv[b, 1] = ua, va
         if not refine or cap <= 0 or top <= 0:
             continue
@@ -570,49 +591,26 @@ def fast_scores(
         refined[b] = k
         # 4. refinement on the exact pattern
         a = grids[b]
-        norm = _total(a.ravel()) ** 2
-        for i in range(k):
-            if est[i, 0] < math.log(psl[b]) - _SKIP:
-                break  # this and the later (lower) lobes cannot reach the PSL found
-            j = cand[i]
-            u0, v0 = _alias(
-                j,
-                _removed_at(j, w_pos, removed),
-                nc,
-                srows,
-                scols,
-                du,
-                dv,
-                periodic,
-                tu,
-                tv,
-                nqv,
-                radius,
-                cu,
-                cv,
-            )
-            pr_, ur, vr = _refine(
-                a,
-                kx,
-                ky,
-                norm,
-                u0,
-                v0,
-                est[i, 1],
-                est[i, 2],
-                du,
-                dv,
-                radius,
-                cu,
-                cv,
-                linear,
-                iterations,
-                ws,
-                psl[b],
-            )
-            if pr_ > psl[b]:
-                psl[b] = pr_
-                uv[b, 0], uv[b, 1] = ur, vr
+        best, ub, vb = _climb(
+            a,
+            kx,
+            ky,
+            _total(a.ravel()) ** 2,
+            k,
+            cand,
+            est,
+            psl[b],
+            w_pos,
+            removed,
+            srows,
+            scols,
+            geom,
+            linear,
+            ws,
+        )
+        if best > psl[b]:
+            psl[b] = best
+            uv[b, 0], uv[b, 1] = ub, vb
     return psl, asl, uv, status, refined
 
 
@@ -671,13 +669,6 @@ def swap_scores(
     nmove = rows.shape[0]
     nsw = rows.shape[1]
     pr, pc = tw_r.shape[0], tw_c.shape[0]
-    nc = int(geom[0])
-    du, dv = geom[1], geom[2]
-    periodic = geom[3] > 0
-    tu, tv = geom[4], geom[5]
-    nqv = int(geom[6])
-    radius, cu, cv = geom[7], geom[8], geom[9]
-    iterations = int(geom[10])
     p = base  # changed at ext for each move and restored
     saved = np.empty(ext.size)
     for e in range(ext.size):
@@ -732,47 +723,23 @@ def swap_scores(
             )
             for s in range(nsw):
                 grid[rows[m, s], cols[m, s]] += signs[m, s]
-            for i in range(k):
-                if est[i, 0] < math.log(psl[m]) - _SKIP:
-                    break
-                j = cand[i]
-                u0, v0 = _alias(
-                    j,
-                    _removed_at(j, w_pos, removed),
-                    nc,
-                    srows,
-                    scols,
-                    du,
-                    dv,
-                    periodic,
-                    tu,
-                    tv,
-                    nqv,
-                    radius,
-                    cu,
-                    cv,
-                )
-                pr_, _, _ = _refine(
-                    grid,
-                    kx,
-                    ky,
-                    peak,
-                    u0,
-                    v0,
-                    est[i, 1],
-                    est[i, 2],
-                    du,
-                    dv,
-                    radius,
-                    cu,
-                    cv,
-                    linear,
-                    iterations,
-                    ws,
-                    psl[m],
-                )
-                if pr_ > psl[m]:
-                    psl[m] = pr_
+            psl[m], _, _ = _climb(
+                grid,
+                kx,
+                ky,
+                peak,
+                k,
+                cand,
+                est,
+                psl[m],
+                w_pos,
+                removed,
+                srows,
+                scols,
+                geom,
+                linear,
+                ws,
+            )
             for s in range(nsw):
                 grid[rows[m, s], cols[m, s]] -= signs[m, s]
         for e in range(ext.size):
