@@ -5,7 +5,8 @@
    transform (``ThinningProblem.evaluate_swaps``) against full evaluations of the same
    layouts, one by one and as one batch: with the base's transform kept, after an accepted
    move, on a new base, over a local search; and the largest PSL difference. Then the time
-   per swap move and per full evaluation as a 20 s genetic run spends them.
+   per swap move and per full evaluation as a 20 s genetic run spends them, and swap moves
+   of that run's optimised layout (kept, and as a new base).
 2. Workers: one generation of 64 and of 128 genomes (64 × 64 lattice) evaluated with
    ``--workers 1`` and ``--workers 2``: the speed-up.
 3. Scale: ``thinning score`` of a 65,536-site (256 × 256) layout against a bare script that
@@ -141,6 +142,18 @@ def bench_swaps():
     run = run_method(q, "genetic", 1, {}, time_limit_s=20, workers=1)
     ga_full = spent["full"][0] / spent["full"][1]
     ga_swap = spent["swap"][0] / spent["swap"][1]
+    # (f) the run's optimised layout as the base (many lobes near its peak): kept, and new
+    best = run.genome
+    o_off, o_on, o_trial = moves(best)
+    p.evaluate_swaps(best, o_off, o_on)
+    t_opt_kept = timed(lambda: p.evaluate_swaps(best, o_off, o_on), 9) / k
+
+    def cold_optimised():
+        p._swap_cache = None
+        p.evaluate_swaps(best, o_off, o_on)
+
+    t_opt_new = timed(cold_optimised, 9) / k
+    t_opt_full = timed(lambda: p.evaluate(o_trial)) / k
     d = max(
         float(np.abs(p.evaluate_swaps(g, off, on).psl_db - p.evaluate(trial).psl_db).max()),
         float(np.abs(ev.psl_db - p.evaluate(tr).psl_db).max()),
@@ -169,6 +182,11 @@ def bench_swaps():
         "genetic_full_ms_per_layout": ga_full * 1e3,
         "genetic_swap_ms_per_move": ga_swap * 1e3,
         "genetic_swap_speedup": ga_full / ga_swap,
+        "optimised_base_swap_ms_per_move": t_opt_kept * 1e3,
+        "optimised_base_new_swap_ms_per_move": t_opt_new * 1e3,
+        "optimised_full_batched_ms_per_layout": t_opt_full * 1e3,
+        "optimised_speedup_kept": t_opt_full / t_opt_kept,
+        "optimised_speedup_new_base": t_opt_full / t_opt_new,
     }
 
 
@@ -313,6 +331,12 @@ def main():
         f"{s['genetic_full_evaluations']:,} full evaluations at "
         f"{s['genetic_full_ms_per_layout']:.4f} ms, {s['genetic_swap_moves']:,} swap moves at "
         f"{s['genetic_swap_ms_per_move']:.4f} ms -> {s['genetic_swap_speedup']:.1f}x"
+    )
+    print(
+        f"  on that run's optimised layout: {s['optimised_base_swap_ms_per_move']:.4f} ms per "
+        f"move kept, {s['optimised_base_new_swap_ms_per_move']:.4f} ms on it as a new base; "
+        f"full evaluation {s['optimised_full_batched_ms_per_layout']:.3f} ms in a batch -> "
+        f"{s['optimised_speedup_kept']:.1f}x / {s['optimised_speedup_new_base']:.1f}x"
     )
     w = bench_workers()
     for r in w:
