@@ -21,7 +21,7 @@ from thinning import fastpath
 from thinning.aperture import Aperture
 from thinning.exact import GridExact
 from thinning.lattice import Lattice
-from thinning.pattern import FAST_CANDIDATES, MARGIN_DB, FFTPatternEngine
+from thinning.pattern import FFTPatternEngine
 from thinning.problem import ThinningProblem
 
 LAM = 0.03  # [m]; every check is in wavelengths
@@ -114,24 +114,6 @@ def test_wide_main_beam_uses_a_wider_window():
         for p in eng.power(a)
     ]
     assert levels[0] >= 1 and levels[1] == 0
-    f = eng.transform(a)
-    parts = np.ascontiguousarray(f).view(np.float32).reshape(2, -1)
-    kx, ky = eng._phases()
-    tables = eng.region.fast_tables(np.float32)
-    _, _, _, status, _ = fastpath.fast_scores(
-        parts,
-        a.astype(np.float64),
-        True,
-        FAST_CANDIDATES[0],
-        10 ** (-MARGIN_DB[0] / 10),
-        *tables.region,
-        *tables.levels,
-        kx,
-        ky,
-        False,
-        *eng._work(np.float32, parts.shape[1] // 2),
-    )
-    assert list(status) == [0, 0]  # neither pattern left to the numpy route
     fast, slow = _both(eng, a)
     _assert_same(eng, a, fast, slow)
 

@@ -29,8 +29,8 @@ route (checked in tests/test_fastpath.py):
 
 :func:`swap_scores` does steps 3 and 4 for K swap moves of one layout, whose samples differ
 from the layout's only at a few stored places (:meth:`thinning.problem.ThinningProblem.
-evaluate_swaps`). Patterns whose main beam reaches the rim of the first window are flagged for
-the numpy route, which widens the window. Everything runs on the CPU in the calling thread,
+evaluate_swaps`). A main beam that reaches the rim of a window is cut again in the next one,
+twice as wide, as the numpy route does. Everything runs on the CPU in the calling thread,
 without the GIL (so that the thread feeding the worker processes keeps running meanwhile).
 """
 
@@ -434,8 +434,9 @@ def _power_pass(f, out, weight, outer):
 @njit(cache=True)
 def _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok):
     """Main-beam membership ``ok`` of the samples of the first window (of those stacked) that
-    holds the main beam of pattern ``p``; returns that window's index and whether the beam
-    outgrew every window."""
+    holds the main beam of pattern ``p``; returns that window's index. The last window spans
+    the grid (:meth:`thinning.region.SampledRegion.fast_tables` stacks them until one does),
+    so some window always holds the beam."""
     nlev = w_capped.size
     for lev in range(nlev):
         a0, nw = w_start[lev], w_start[lev + 1] - w_start[lev]
@@ -444,15 +445,15 @@ def _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok):
             q = w_parent[a0 + i]
             ok[i] = ok[q] and p[w_flat[a0 + i]] <= p[w_flat[a0 + q]]
         if w_capped[lev]:
-            return lev, False
+            return lev
         over = False
         for i in range(nw):
             if ok[i] and w_rim[a0 + i]:
                 over = True
                 break
         if not over:
-            return lev, False
-    return nlev - 1, True
+            return lev
+    return nlev - 1
 
 
 @njit(cache=True, nogil=True)
@@ -504,9 +505,6 @@ def fast_scores(
     -------
     psl, asl : (B,) float  [1]   normalised to the beam peak
     uv : (B, 2) float  [1]
-    status : (B,) int   0 done, 1 the main beam outgrows every window (not expected: the
-                        last one spans the grid; use the numpy route)
-    refined : (B,) int  candidate lobes refined
     """
     nb, n = f.shape[0], f.shape[1] // 2
     nlev = w_capped.size
@@ -516,8 +514,6 @@ def fast_scores(
     psl = np.zeros(nb)
     asl = np.zeros(nb)
     uv = np.zeros((nb, 2))
-    status = np.zeros(nb, dtype=np.int64)
-    refined = np.zeros(nb, dtype=np.int64)
     ok = np.zeros(wmax, dtype=np.bool_)
     removed_all = np.zeros(wmax)
     cand = np.zeros(max(cap, 1), dtype=np.int64)
@@ -531,10 +527,7 @@ def fast_scores(
         total, o_max = _power_pass(f[b], p, weight, outer_all[0])
         peak = float(p[0])
         # 1. main beam: one pass, parents first, in the first window that holds it
-        lev, over = _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok)
-        if over:
-            status[b] = 1
-            continue
+        lev = _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok)
         a0, nw = w_start[lev], w_start[lev + 1] - w_start[lev]
         outer = outer_all[lev]
         w_pos = w_pos_all[lev]
@@ -588,7 +581,6 @@ def fast_scores(
             cand,
             est,
         )
-        refined[b] = k
         # 4. refinement on the exact pattern
         a = grids[b]
         best, ub, vb = _climb(
@@ -611,7 +603,7 @@ def fast_scores(
         if best > psl[b]:
             psl[b] = best
             uv[b, 0], uv[b, 1] = ub, vb
-    return psl, asl, uv, status, refined
+    return psl, asl, uv
 
 
 @njit(cache=True, nogil=True)
@@ -867,16 +859,15 @@ def swap_asl_terms(
 @njit(cache=True)
 def main_beam_cut(p, w_flat, w_parent, w_rim, w_w0, w_capped, w_start):
     """Step 1 of the module docstring for one pattern: the window that holds its main beam,
-    the weight the main beam takes from each of its samples, and whether the beam outgrew
-    every window (then use the numpy route)."""
+    and the weight the main beam takes from each of that window's samples."""
     wmax = 0
     for lev in range(w_capped.size):
         wmax = max(wmax, w_start[lev + 1] - w_start[lev])
     ok = np.zeros(wmax, dtype=np.bool_)
-    lev, over = _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok)
+    lev = _window_cut(p, w_flat, w_parent, w_rim, w_capped, w_start, ok)
     a0, nw = w_start[lev], w_start[lev + 1] - w_start[lev]
     removed = np.zeros(nw)
     for i in range(nw):
         if ok[i]:
             removed[i] = w_w0[a0 + i]
-    return lev, removed, over
+    return lev, removed

@@ -106,6 +106,16 @@ class _Engine:
     linear: bool
     radius: float
 
+    @property
+    def margin_db(self) -> float:
+        """Candidates within this many dB of the highest sample are refined  [dB]."""
+        return MARGIN_DB[1] if self.linear else MARGIN_DB[0]
+
+    @property
+    def fast_candidates(self) -> int:
+        """How many candidate lobes the search's fast evaluation refines per pattern."""
+        return FAST_CANDIDATES[1] if self.linear else FAST_CANDIDATES[0]
+
     def _refine(self, exact, red, b, flats, region):
         """Refine candidate samples (pattern b[k], sample flats[k]) on the exact pattern."""
         uv = region.alias_points(flats, region.removed_weight(red, b, flats))
@@ -125,8 +135,7 @@ class _Engine:
     def _scores(self, exact, power, red, region, cap) -> tuple[Scores, int]:
         """Per pattern: the best of its refined candidate lobes (never below its samples)."""
         n = red.peak.size
-        margin = MARGIN_DB[1] if self.linear else MARGIN_DB[0]
-        b, flats = region.candidates(power, red, margin, cap)
+        b, flats = region.candidates(power, red, self.margin_db, cap)
         psl = red.psl.copy()
         uv = region.alias_points(red.argmax, region.removed_weight(red, np.arange(n), red.argmax))
         if b.size:
@@ -316,25 +325,22 @@ class FFTPatternEngine(_Engine):
         return self._evaluate_numpy(a, power, refine, region)
 
     def _evaluate_compiled(self, a, refine, region) -> Scores:
-        """:meth:`evaluate` by :func:`thinning.fastpath.fast_scores` from the transform (a
-        pattern whose main beam would outgrow every window takes the numpy route)."""
+        """:meth:`evaluate` by :func:`thinning.fastpath.fast_scores` from the transform."""
         from . import fastpath
 
         f = self.transform(a)
         b = f.shape[0]
         parts = np.ascontiguousarray(f).view(f.real.dtype).reshape(b, -1)
         grids = np.ascontiguousarray(a, dtype=np.float64) if refine else _NO_GRIDS
-        margin = MARGIN_DB[1] if self.linear else MARGIN_DB[0]
-        cap = FAST_CANDIDATES[1] if self.linear else FAST_CANDIDATES[0]
         kx, ky = self._phases()
         tables = region.fast_tables(parts.dtype)
-        psl, asl, uv, status, _ = fastpath.call(
+        psl, asl, uv = fastpath.call(
             fastpath.fast_scores,
             parts,
             grids,
             bool(refine),
-            cap,
-            10 ** (-margin / 10),
+            self.fast_candidates,
+            10 ** (-self.margin_db / 10),
             *tables.region,
             *tables.levels,
             kx,
@@ -342,10 +348,6 @@ class FFTPatternEngine(_Engine):
             self.linear,
             *self._work(parts.dtype, parts.shape[1] // 2),
         )
-        rest = np.flatnonzero(status)
-        if rest.size:
-            sc = self._evaluate_numpy(a[rest], self.power_of(f[rest]), refine, region)
-            psl[rest], asl[rest], uv[rest] = sc.psl, sc.asl, sc.psl_uv
         return Scores(psl, asl, uv)
 
     def _work(self, dtype, n):
@@ -370,8 +372,7 @@ class FFTPatternEngine(_Engine):
                 red.argmax, region.removed_weight(red, np.arange(n), red.argmax)
             )
             return Scores(red.psl.copy(), red.asl.copy(), uv)
-        cap = FAST_CANDIDATES[1] if self.linear else FAST_CANDIDATES[0]
-        return self._scores(self.exact(a), power, red, region, cap)[0]
+        return self._scores(self.exact(a), power, red, region, self.fast_candidates)[0]
 
     def detail(self, grid, region=None) -> PatternDetail:
         """Detailed evaluation of one excitation grid: every candidate lobe refined."""

@@ -126,7 +126,7 @@ class _SwapBase:
         self.p0 = (f0.real**2 + f0.imag**2).ravel()
         self.peak = float(self.p0[0])  # a swap keeps Σa, so the beam peak
         t = region.fast_tables(np.float64)
-        lev, removed, over = fastpath.call(
+        lev, removed = fastpath.call(
             fastpath.main_beam_cut,
             self.p0,
             t.w_flat,
@@ -136,14 +136,8 @@ class _SwapBase:
             t.w_capped,
             t.w_start,
         )
-        if over:  # not expected (the last window spans the grid): the numpy route
-            red = region.reduce(self.p0[None])
-            win, removed = red.windows[0], red.main_beam_weight[0]
-            self.pos = np.full(g.nr * g.nc, -1, dtype=np.int64)
-            self.pos[win.flat] = np.arange(win.flat.size)
-        else:
-            win = t.windows[lev]
-            self.pos = t.w_pos[lev]
+        win = t.windows[lev]
+        self.pos = t.w_pos[lev]
         self.removed = np.asarray(removed, dtype=np.float64)
         self.weff = region.weight.copy()
         self.weff[win.flat] -= self.removed
@@ -214,12 +208,9 @@ class _SwapBase:
         """Samples that can hold the highest or a candidate lobe of a move switching w sites
         each way, with their neighbours."""
         if w not in self._ext:
-            from .pattern import MARGIN_DB
-
             eng = self.engine
             dmax = 2.0 * w
-            margin = MARGIN_DB[1] if eng.linear else MARGIN_DB[0]
-            low = max(0.0, (self.top - dmax) * 10 ** (-margin / 20) - dmax)
+            low = max(0.0, (self.top - dmax) * 10 ** (-eng.margin_db / 20) - dmax)
             near = np.flatnonzero(self.inside & (self.amp >= low))
             nbr = eng.region.fast_tables(np.float64).nbr  # the 8 neighbours of each sample
             ext = np.unique(np.concatenate([near, nbr[near].ravel()]))
@@ -516,6 +507,16 @@ class ThinningProblem:
             self._gene_sites = table
         return self._gene_sites
 
+    def swapped(self, base_genome, off_genes, on_genes) -> np.ndarray:
+        """The K genomes (K, G) of ``base_genome`` with gene ``off_genes[k]`` switched off and
+        ``on_genes[k]`` on."""
+        off = np.atleast_1d(off_genes)
+        out = np.repeat(np.asarray(base_genome, dtype=bool)[None], off.size, axis=0)
+        rows = np.arange(off.size)
+        out[rows, off] = False
+        out[rows, np.atleast_1d(on_genes)] = True
+        return out
+
     def evaluate_swaps(self, base_genome, off_genes, on_genes) -> Evaluation:
         """Figures of K swap moves of one layout, from its stored transform.
 
@@ -543,17 +544,13 @@ class ThinningProblem:
         off_genes, on_genes : (K,) int   gene switched off (on) by each move; must be on (off)
         """
         from . import fastpath
-        from .pattern import FAST_CANDIDATES, MARGIN_DB
 
         base = np.asarray(base_genome, dtype=bool)
         off = np.atleast_1d(np.asarray(off_genes, dtype=np.int64))
         on = np.atleast_1d(np.asarray(on_genes, dtype=np.int64))
         k_moves = off.size
         if self.robust is not None:
-            genomes = np.repeat(base[None], k_moves, axis=0)
-            genomes[np.arange(k_moves), off] = False
-            genomes[np.arange(k_moves), on] = True
-            return self.evaluate(genomes)
+            return self.evaluate(self.swapped(base, off, on))
         eng, region = self.engine, self.engine.region
         st = self._swap_base(base)
         # the switched sites: grid indices and signs, (K, S)
@@ -568,8 +565,6 @@ class ThinningProblem:
         ii = self.sites.col[site] - c0
         rows, cols = jj.astype(np.int64), ii.astype(np.int64)
         ext = st.ext(w)
-        margin = MARGIN_DB[1] if eng.linear else MARGIN_DB[0]
-        cap = FAST_CANDIDATES[1] if eng.linear else FAST_CANDIDATES[0]
         tables = region.fast_tables(np.float64)
         kx, ky = eng._phases()
         psl, _ = fastpath.call(
@@ -586,8 +581,8 @@ class ThinningProblem:
             cols,
             sign,
             st.peak,
-            cap,
-            10 ** (-margin / 10),
+            eng.fast_candidates,
+            10 ** (-eng.margin_db / 10),
             tables.weight,
             st.pos,
             st.removed,

@@ -18,6 +18,7 @@ jumping, in log₂(window radius) vectorised steps.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
@@ -356,63 +357,72 @@ class SampledRegion:
         dtype = np.dtype(dtype)
         if getattr(self, "_fast", None) is None:
             self._fast = {}
-        if dtype not in self._fast:
-            g = self.grid
-            n = g.nr * g.nc
-            # the windows the numpy route would try, in order: each twice the last, until one
-            # spans the grid
-            wins = [self.window()]
-            while not wins[-1].capped:
-                wins.append(self.window(2.0 * wins[-1].radius))
-            for win in wins:
-                if np.any(win.parent[1:] >= np.arange(1, win.parent.size)):
-                    raise AssertionError("a window sample comes before its parent")
-            pos = np.full((len(wins), n), -1, dtype=np.int64)
-            for k, win in enumerate(wins):
-                pos[k, win.flat] = np.arange(win.flat.size)
-            s, c = np.divmod(np.arange(n), g.nc)
-            r = g.signed_rows[s]
-            nbr = np.full((n, 8), -1, dtype=np.int64)
-            offsets = [(dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1) if dr or dc]
-            for k, (dr, dc) in enumerate(offsets):
-                if g.nr > 1 or dr == 0:
-                    nbr[:, k] = g.neighbour(r, c, dr, dc)
-            tu, tv = g.period if g.periodic else (0.0, None)
-            reach = self.radius + math.hypot(*self.centre)
-            n_v = 0 if (not g.periodic or tv is None) else int(math.ceil(reach / tv)) + 1
-            geom = np.array(
-                [
-                    g.nc,
-                    g.du,
-                    g.dv,
-                    1.0 if g.periodic else 0.0,
-                    tu,
-                    0.0 if tv is None else tv,
-                    n_v,
-                    self.radius,
-                    self.centre[0],
-                    self.centre[1],
-                    12,  # Newton iterations, as refine_peaks
-                    self.total_weight,
-                ]
-            )
-            self._fast[dtype] = FastTables(
+        if dtype in self._fast:
+            return self._fast[dtype]
+        if self._fast:  # only the sample weights depend on the precision
+            any_tables = next(iter(self._fast.values()))
+            self._fast[dtype] = dataclasses.replace(
+                any_tables,
                 weight=self.weight.astype(dtype),
-                nbr=nbr,
-                srows=g.signed_rows.astype(np.int64),
-                scols=g.signed_cols.astype(np.int64),
-                geom=geom,
-                outer=np.stack([w.outer_mask for w in wins]).astype(dtype),
-                w_flat=np.concatenate([w.flat for w in wins]).astype(np.int64),
-                w_parent=np.concatenate([w.parent for w in wins]).astype(np.int64),
-                w_rim=np.concatenate([np.asarray(w.rim, dtype=np.bool_) for w in wins]),
-                w_weight=np.concatenate([w.weight for w in wins]).astype(np.float64),
-                w_w0=np.concatenate([w.w0 for w in wins]).astype(np.float64),
-                w_pos=pos,
-                w_capped=np.array([w.capped for w in wins], dtype=np.bool_),
-                w_start=np.cumsum([0] + [w.flat.size for w in wins]).astype(np.int64),
-                windows=tuple(wins),
+                outer=any_tables.outer.astype(dtype),
             )
+            return self._fast[dtype]
+        g = self.grid
+        n = g.nr * g.nc
+        # the windows the numpy route would try, in order: each twice the last, until one
+        # spans the grid
+        wins = [self.window()]
+        while not wins[-1].capped:
+            wins.append(self.window(2.0 * wins[-1].radius))
+        for win in wins:
+            if np.any(win.parent[1:] >= np.arange(1, win.parent.size)):
+                raise AssertionError("a window sample comes before its parent")
+        pos = np.full((len(wins), n), -1, dtype=np.int64)
+        for k, win in enumerate(wins):
+            pos[k, win.flat] = np.arange(win.flat.size)
+        s, c = np.divmod(np.arange(n), g.nc)
+        r = g.signed_rows[s]
+        nbr = np.full((n, 8), -1, dtype=np.int64)
+        offsets = [(dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1) if dr or dc]
+        for k, (dr, dc) in enumerate(offsets):
+            if g.nr > 1 or dr == 0:
+                nbr[:, k] = g.neighbour(r, c, dr, dc)
+        tu, tv = g.period if g.periodic else (0.0, None)
+        reach = self.radius + math.hypot(*self.centre)
+        n_v = 0 if (not g.periodic or tv is None) else int(math.ceil(reach / tv)) + 1
+        geom = np.array(
+            [
+                g.nc,
+                g.du,
+                g.dv,
+                1.0 if g.periodic else 0.0,
+                tu,
+                0.0 if tv is None else tv,
+                n_v,
+                self.radius,
+                self.centre[0],
+                self.centre[1],
+                12,  # Newton iterations, as refine_peaks
+                self.total_weight,
+            ]
+        )
+        self._fast[dtype] = FastTables(
+            weight=self.weight.astype(dtype),
+            nbr=nbr,
+            srows=g.signed_rows.astype(np.int64),
+            scols=g.signed_cols.astype(np.int64),
+            geom=geom,
+            outer=np.stack([w.outer_mask for w in wins]).astype(dtype),
+            w_flat=np.concatenate([w.flat for w in wins]).astype(np.int64),
+            w_parent=np.concatenate([w.parent for w in wins]).astype(np.int64),
+            w_rim=np.concatenate([np.asarray(w.rim, dtype=np.bool_) for w in wins]),
+            w_weight=np.concatenate([w.weight for w in wins]).astype(np.float64),
+            w_w0=np.concatenate([w.w0 for w in wins]).astype(np.float64),
+            w_pos=pos,
+            w_capped=np.array([w.capped for w in wins], dtype=np.bool_),
+            w_start=np.cumsum([0] + [w.flat.size for w in wins]).astype(np.int64),
+            windows=tuple(wins),
+        )
         return self._fast[dtype]
 
     # -- reductions -----------------------------------------------------------------------
@@ -528,10 +538,6 @@ class SampledRegion:
         """
         g = self.grid
         power = np.atleast_2d(power)
-
-        def get(b, flat):
-            return power[b, flat]
-
         top = red.psl * red.peak
         thr = top * 10 ** (-margin_db / 10)
         b, idx = np.nonzero(power >= thr[:, None].astype(power.dtype))
@@ -539,7 +545,7 @@ class SampledRegion:
         b, idx = b[ok], idx[ok]
         s, c = np.divmod(idx, g.nc)
         r = g.signed_rows[s]
-        here = get(b, idx)
+        here = power[b, idx]
         is_max = np.ones(idx.size, dtype=bool)
         offsets = (
             [(0, -1), (0, 1)]
@@ -551,7 +557,7 @@ class SampledRegion:
             n = g.neighbour(r, c, dr, dc)
             nb[(dr, dc)] = n
             n0 = np.maximum(n, 0)
-            val = np.where((n >= 0) & self._eligible(red, b, n0), get(b, n0), -1.0)
+            val = np.where((n >= 0) & self._eligible(red, b, n0), power[b, n0], -1.0)
             is_max &= here >= val
         b, idx, here = b[is_max], idx[is_max], here[is_max]
         logc = np.log(np.maximum(here.astype(np.float64), 1e-300))
@@ -561,7 +567,7 @@ class SampledRegion:
             vals = []
             for off in (lo, hi):
                 n = nb[off][is_max]
-                v = np.where(n >= 0, get(b, np.maximum(n, 0)), here).astype(np.float64)
+                v = np.where(n >= 0, power[b, np.maximum(n, 0)], here).astype(np.float64)
                 vals.append(np.log(np.maximum(v, 1e-300)))
             lo_v, hi_v = vals
             den = lo_v - 2 * logc + hi_v

@@ -243,9 +243,7 @@ class Tracker:
         counted and tracked like :meth:`evaluate`."""
         base = np.asarray(base, dtype=bool)
         if genomes is None:
-            genomes = np.repeat(base[None], len(off_genes), axis=0)
-            genomes[np.arange(len(off_genes)), off_genes] = False
-            genomes[np.arange(len(on_genes)), on_genes] = True
+            genomes = self.problem.swapped(base, off_genes, on_genes)
         ev = self.problem.evaluate_swaps(base, off_genes, on_genes)
         self._account(np.asarray(genomes, dtype=bool), ev)
         return ev

@@ -378,10 +378,7 @@ class _Climber:
                 flat = self.rng.integers(self.total, size=n)
             self.pos += n
             on, off = self._moves(flat)
-            trial = np.repeat(self.genome[None, :], n, axis=0)
-            rows = np.arange(n)
-            trial[rows, on] = False
-            trial[rows, off] = True
+            trial = self.tracker.problem.swapped(self.genome, on, off)
             # scored by updating the base layout's transform, not by n new FFTs
             ev = self.tracker.evaluate_swaps(self.genome, on, off, trial)
             spent += n
