@@ -12,6 +12,7 @@ import pytest
 pytest.importorskip("distributed")
 
 from distributed import LocalCluster  # noqa: E402
+from helpers import small_spec  # noqa: E402
 
 from thinning.cli import main  # noqa: E402
 from thinning.cluster import (  # noqa: E402
@@ -23,22 +24,7 @@ from thinning.cluster import (  # noqa: E402
 )
 from thinning.sweep import run_sweep  # noqa: E402
 
-SPEC = """
-[array]
-frequency_ghz = 10.0
-lattice = "rectangular"
-spacing_mm = [15.0, 15.0]
-[aperture]
-outline_mm = [[0, 0], [150, 0], [150, 120], [0, 120]]
-[budget]
-elements = 40
-[scan]
-max_deg = 10.0
-[search]
-method = "random"
-seed = 4
-evaluations = 300
-"""
+SPEC = small_spec()
 
 
 @pytest.fixture(scope="module")

@@ -11,6 +11,7 @@ import time
 
 import numpy as np
 import pytest
+from helpers import small_spec
 
 from thinning.cli import main
 from thinning.errors import GeometryError, SpecError
@@ -18,22 +19,7 @@ from thinning.io.layout_csv import read_layout_csv
 from thinning.search import run_method
 from thinning.spec import load_spec, parse_spec
 
-SMALL = """
-[array]
-frequency_ghz = 10.0
-lattice = "rectangular"
-spacing_mm = [15.0, 15.0]
-[aperture]
-outline_mm = [[0, 0], [150, 0], [150, 120], [0, 120]]
-[budget]
-elements = 40
-[scan]
-max_deg = 10.0
-[search]
-method = "random"
-seed = 4
-evaluations = 600
-"""
+SMALL = small_spec(evaluations=600)
 
 
 def write(tmp_path, text, name="spec.toml"):

@@ -14,8 +14,8 @@ import time
 
 import numpy as np
 import pytest
+from helpers import rect_sites, tri_sites
 
-from thinning.aperture import Aperture
 from thinning.errors import SpecError
 from thinning.lattice import Lattice
 from thinning.problem import ThinningProblem
@@ -28,18 +28,6 @@ LAM = 0.03  # [m] 10 GHz; the 15 mm pitch is half a wavelength
 def linear_problem(m, n, **kw):
     sites = Lattice.from_mm("linear", [15.0]).linear_sites(m)
     return ThinningProblem(sites, n, LAM, 0.0, **kw)
-
-
-def _rect_sites():
-    """9 × 7 sites at half a wavelength, centred on the origin."""
-    ap = Aperture.from_mm([[-61, -46], [61, -46], [61, 46], [-61, 46]])
-    return Lattice.from_mm("rectangular", [15.0, 15.0]).sites_in(ap)
-
-
-def _tri_sites():
-    """Equilateral triangular lattice in a slightly skewed outline (some sites lack partners)."""
-    ap = Aperture.from_mm([[-70, -50], [72, -50], [70, 40], [-70, 52]])
-    return Lattice.from_mm("triangular", [17.32, 15.0]).sites_in(ap)
 
 
 def _images(sites, symmetry):
@@ -97,7 +85,7 @@ def test_forward_backward_is_exact(kind):
     if kind == "linear":
         problem = linear_problem(37, 20)
     else:
-        problem = ThinningProblem(_rect_sites() if kind == "rectangular" else _tri_sites(), 20, LAM)
+        problem = ThinningProblem(rect_sites() if kind == "rectangular" else tri_sites(), 20, LAM)
     plan = IFTPlan(problem)
     x = np.random.default_rng(1).random((3, len(problem.sites)))
     np.testing.assert_allclose(plan.backward(plan.forward(x)).real, x, atol=1e-12)
@@ -127,9 +115,9 @@ CONSTRAINED = [
         "linear mirror-x",
         lambda: _constrained(Lattice.from_mm("linear", 15.0).linear_sites(61), 31, "mirror-x"),
     ),
-    ("rectangular mirror-x", lambda: _constrained(_rect_sites(), 31, "mirror-x", 20.0)),
-    ("rectangular mirror-xy", lambda: _constrained(_rect_sites(), 29, "mirror-xy", 0.0)),
-    ("triangular rotate-180", lambda: _constrained(_tri_sites(), 30, "rotate-180", 30.0)),
+    ("rectangular mirror-x", lambda: _constrained(rect_sites(), 31, "mirror-x", 20.0)),
+    ("rectangular mirror-xy", lambda: _constrained(rect_sites(), 29, "mirror-xy", 0.0)),
+    ("triangular rotate-180", lambda: _constrained(tri_sites(), 30, "rotate-180", 30.0)),
 ]
 
 
@@ -158,7 +146,7 @@ def test_counts_and_constraints(name, build, options):
 
 
 def test_iterate_keeps_counts_from_any_start():
-    problem = _constrained(_rect_sites(), 31, "mirror-x", 20.0)
+    problem = _constrained(rect_sites(), 31, "mirror-x", 20.0)
     plan = IFTPlan(problem)
     start = np.random.default_rng(2).normal(size=(6, len(problem.sites)))  # even negative
     for level in (10.0, 25.0, np.array([5.0, 15.0, 25.0, 35.0, 45.0, 55.0])):
@@ -174,7 +162,7 @@ def test_no_choice_means_one_evaluation():
 
 # -- determinism, limits, options -------------------------------------------------------------
 def test_same_seed_same_result():
-    problem = ThinningProblem(_rect_sites(), 30, LAM, math.radians(20))
+    problem = ThinningProblem(rect_sites(), 30, LAM, math.radians(20))
     a = run_method(problem, "ift", 7, max_evaluations=64)
     b = run_method(problem, "ift", 7, max_evaluations=64)
     c = run_method(problem, "ift", 8, max_evaluations=64)

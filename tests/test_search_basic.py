@@ -11,12 +11,12 @@ import math
 
 import numpy as np
 import pytest
+from helpers import rect_sites, tri_sites
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.signal.windows import taylor
 
 from thinning import metrics
-from thinning.aperture import Aperture
 from thinning.errors import SpecError
 from thinning.lattice import Lattice
 from thinning.problem import SYMMETRIES, ThinningProblem
@@ -26,23 +26,11 @@ from thinning.search.density import draw, taper_probabilities, taper_values
 LAM = 0.03  # [m]  10 GHz
 
 
-def _rect_sites():
-    """9 × 7 sites at half a wavelength, centred on the origin."""
-    ap = Aperture.from_mm([[-61, -46], [61, -46], [61, 46], [-61, 46]])
-    return Lattice.from_mm("rectangular", [15.0, 15.0]).sites_in(ap)
-
-
-def _tri_sites():
-    """Equilateral triangular lattice in a slightly skewed outline (some sites lack partners)."""
-    ap = Aperture.from_mm([[-70, -50], [72, -50], [70, 40], [-70, 52]])
-    return Lattice.from_mm("triangular", [17.32, 15.0]).sites_in(ap)
-
-
 def _linear_sites(m=400):
     return Lattice.from_mm("linear", 15.0).linear_sites(m)
 
 
-SITES = {"rectangular": _rect_sites(), "triangular": _tri_sites()}
+SITES = {"rectangular": rect_sites(), "triangular": tri_sites()}
 
 
 def _images(sites, symmetry):
@@ -291,7 +279,7 @@ def test_worker_processes_give_the_same_figures_and_survive_an_error():
     raises in the caller, and the worker's unread answer does not leak into the next one."""
     from thinning.search import Tracker
 
-    p = ThinningProblem(_rect_sites(), 30, LAM, math.radians(10))
+    p = ThinningProblem(rect_sites(), 30, LAM, math.radians(10))
     g = p.random_genomes(np.random.default_rng(2), 40)
     alone = p.evaluate(g)
     with Tracker(p, workers=2) as tr:

@@ -7,30 +7,14 @@ import math
 
 import numpy as np
 import pytest
+from helpers import small_spec
 
 from thinning.cli import main
 from thinning.errors import SpecError
 from thinning.search.pareto import non_dominated
 from thinning.sweep import parse_budgets, steinberg_median_peak
 
-SPEC = """
-[array]
-frequency_ghz = 10.0
-lattice = "rectangular"
-spacing_mm = [15.0, 15.0]
-[aperture]
-outline_mm = [[0, 0], [150, 0], [150, 120], [0, 120]]
-[budget]
-elements = 40
-[scan]
-max_deg = 10.0
-[search]
-method = "METHOD"
-seed = 4
-evaluations = 300
-[requirements]
-psl_db = -12.0
-"""
+SPEC = small_spec(method="METHOD", extra="[requirements]\npsl_db = -12.0\n")
 
 
 def write(tmp_path, method="random"):

@@ -1,0 +1,39 @@
+"""Small test data shared by several test modules (invented for the tests, not published)."""
+
+from __future__ import annotations
+
+from thinning.aperture import Aperture
+from thinning.lattice import Lattice
+
+
+def small_spec(method: str = "random", evaluations: int = 300, extra: str = "") -> str:
+    """A 10 × 8-site rectangular panel at half a wavelength, 40 elements, 10° scan: a spec
+    that designs in well under a second."""
+    return f"""
+[array]
+frequency_ghz = 10.0
+lattice = "rectangular"
+spacing_mm = [15.0, 15.0]
+[aperture]
+outline_mm = [[0, 0], [150, 0], [150, 120], [0, 120]]
+[budget]
+elements = 40
+[scan]
+max_deg = 10.0
+[search]
+method = "{method}"
+seed = 4
+evaluations = {evaluations}
+{extra}"""
+
+
+def rect_sites():
+    """9 × 7 sites at half a wavelength, centred on the origin."""
+    ap = Aperture.from_mm([[-61, -46], [61, -46], [61, 46], [-61, 46]])
+    return Lattice.from_mm("rectangular", [15.0, 15.0]).sites_in(ap)
+
+
+def tri_sites():
+    """Equilateral triangular lattice in a slightly skewed outline (some sites lack partners)."""
+    ap = Aperture.from_mm([[-70, -50], [72, -50], [70, 40], [-70, 52]])
+    return Lattice.from_mm("triangular", [17.32, 15.0]).sites_in(ap)
