@@ -154,22 +154,24 @@ def uv_power_map(
     if grid is not None:
         rows, cols = grid.shape
         gx, gy = engine.pitch
-        tu = wavelength / gx
-        pc = max(engine.pad[1], math.ceil(oversampling * cols), math.ceil((n - 1) * tu / (2 * ext)))
-        pc = scipy.fft.next_fast_len(int(pc))
-        du = tu / pc
-        qu = np.arange(-math.floor(ext / du + 1e-9), math.floor(ext / du + 1e-9) + 1)
-        u = qu * du
+
+        def axis(pad, size, period):
+            """Transform length (≥ the engine's, ≥ n samples over ±extent), the sample
+            indices within ±extent, and their direction cosines."""
+            length = max(
+                pad, math.ceil(oversampling * size), math.ceil((n - 1) * period / (2 * ext))
+            )
+            length = scipy.fft.next_fast_len(int(length))
+            d = period / length
+            q = np.arange(-math.floor(ext / d + 1e-9), math.floor(ext / d + 1e-9) + 1)
+            return length, q, q * d
+
+        pc, qu, u = axis(engine.pad[1], cols, wavelength / gx)
         if fit.linear:
             f = scipy.fft.fft(grid[0], n=pc)
             p = (f.real**2 + f.imag**2) / float(grid.sum()) ** 2
             return u, None, _db(p[qu % pc], floor_db)
-        tv = wavelength / gy
-        pr = max(engine.pad[0], math.ceil(oversampling * rows), math.ceil((n - 1) * tv / (2 * ext)))
-        pr = scipy.fft.next_fast_len(int(pr))
-        dv = tv / pr
-        qv = np.arange(-math.floor(ext / dv + 1e-9), math.floor(ext / dv + 1e-9) + 1)
-        v = qv * dv
+        pr, qv, v = axis(engine.pad[0], rows, wavelength / gy)
         f = scipy.fft.fft2(grid, s=(pr, pc), workers=-1)
         p = (f.real**2 + f.imag**2) / float(grid.sum()) ** 2
         return u, v, _db(p[np.ix_(qv % pr, qu % pc)], floor_db)
