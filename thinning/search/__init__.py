@@ -21,27 +21,19 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..problem import BATCH, Evaluation, ThinningProblem
+from ..problem import BATCH, Evaluation
 
 __all__ = ["METHODS", "SearchResult", "Tracker", "run_method", "method_module"]
 
 METHODS = ("random", "density", "genetic", "ift")
 
+
 # -- worker processes ------------------------------------------------------------------------
-_WORKER_PROBLEM: ThinningProblem | None = None
-
-
-def _init_worker(problem):
-    global _WORKER_PROBLEM
-    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C
-    _WORKER_PROBLEM = problem
-
-
-def _evaluate_chunks(packed, n_genes):
+def _evaluate_chunks(problem, packed, n_genes):
     """Figures of several chunks of genomes, each sent as packed bits (one round trip)."""
     out = []
     for p in packed:
-        ev = _WORKER_PROBLEM.evaluate(np.unpackbits(p, axis=1, count=n_genes).astype(bool))
+        ev = problem.evaluate(np.unpackbits(p, axis=1, count=n_genes).astype(bool))
         out.append((ev.psl_db, ev.asl_db))
     return out
 
@@ -49,7 +41,7 @@ def _evaluate_chunks(packed, n_genes):
 def _worker_loop(conn, problem):
     """A worker process: evaluate each message (packed chunks) and send the figures back,
     until the parent sends None or goes away."""
-    _init_worker(problem)
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C
     while True:
         try:
             msg = conn.recv()
@@ -58,7 +50,7 @@ def _worker_loop(conn, problem):
         if msg is None:
             break
         try:
-            conn.send(_evaluate_chunks(*msg))
+            conn.send(_evaluate_chunks(problem, *msg))
         except Exception as exc:  # the parent re-raises it
             conn.send(exc)
     conn.close()
