@@ -8,7 +8,7 @@ oversampling this prints, per evaluation:
 * the engine's transform alone (the pruned two-step FFT),
 * a full evaluation (transform, sidelobe region, main-beam cut, peak and mean, the best
   candidate lobes refined on the exact pattern) — what the search calls — by the compiled
-  route (thinning/fastpath.py, the default) and by the numpy route (the same figures),
+  route (thinning/engine/fastpath/, the default) and by the numpy route (the same figures),
 * a detailed evaluation (every candidate lobe refined) — what ``thinning score`` reports,
 
 and the ratio of each to the bare transform, all measured in this one run (the median of
@@ -38,7 +38,7 @@ from pathlib import Path
 import numpy as np
 import scipy.fft
 
-from thinning.pattern import FFTPatternEngine
+from thinning.engine.pattern import FFTPatternEngine
 
 
 def median_time(fn, repeat):

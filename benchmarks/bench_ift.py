@@ -8,7 +8,7 @@
 2. A 16,384-site (128 × 128) square aperture at 50 %, scan 20°: each method with the same
    time limit (large apertures are where a genetic search stalls).
 
-Figures are scored by ``thinning.score.score_layout`` (refined on the exact pattern).
+Figures are scored by ``thinning.analysis.score.score_layout`` (refined on the exact pattern).
 Usage: ``python benchmarks/bench_ift.py [--quick] [--json FILE]``.
 """
 
@@ -28,12 +28,12 @@ from pathlib import Path
 
 import numpy as np
 
-from thinning.aperture import Aperture
-from thinning.lattice import Lattice
-from thinning.layout import Layout
-from thinning.problem import ThinningProblem
-from thinning.score import score_layout
+from thinning.analysis.score import score_layout
+from thinning.geometry.aperture import Aperture
+from thinning.geometry.lattice import Lattice
+from thinning.geometry.layout import Layout
 from thinning.search import run_method
+from thinning.search.problem import ThinningProblem
 
 LAM = 0.03
 FREQ = 299792458.0 / LAM

@@ -54,9 +54,9 @@ def timed(fn, repeat=5):
 
 
 def bench_swaps():
-    from thinning.aperture import Aperture
-    from thinning.lattice import Lattice
-    from thinning.problem import ThinningProblem
+    from thinning.geometry.aperture import Aperture
+    from thinning.geometry.lattice import Lattice
+    from thinning.search.problem import ThinningProblem
 
     ap = Aperture.from_mm([[0, 0], [945, 0], [945, 945], [0, 945]], [], 0)
     sites = Lattice.from_mm("rectangular", [15, 15]).sites_in(ap)  # 64 × 64 at λ/2, 10 GHz
@@ -191,10 +191,10 @@ def bench_swaps():
 
 
 def bench_workers():
-    from thinning.aperture import Aperture
-    from thinning.lattice import Lattice
-    from thinning.problem import ThinningProblem
+    from thinning.geometry.aperture import Aperture
+    from thinning.geometry.lattice import Lattice
     from thinning.search import Tracker
+    from thinning.search.problem import ThinningProblem
 
     ap = Aperture.from_mm([[0, 0], [945, 0], [945, 945], [0, 945]], [], 0)
     sites = Lattice.from_mm("rectangular", [15, 15]).sites_in(ap)

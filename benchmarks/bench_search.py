@@ -8,7 +8,7 @@
     1 dB lower. ``genetic`` runs with and without centre symmetry (``mirror-x``), and with
     the two end elements pinned on (Haupt kept the ends on to keep the beamwidth of the filled
     aperture; common practice). The PSL is printed as the search saw it and as
-    :func:`thinning.score.score_layout` measures it on the final layout.
+    :func:`thinning.analysis.score.score_layout` measures it on the final layout.
 (b) A circular aperture of about 800 half-wavelength square-lattice sites at 50 % fill,
     broadside: ``random``, ``density`` and ``genetic`` at the same number of evaluations.
 
@@ -38,12 +38,12 @@ import time
 
 import numpy as np
 
-from thinning.aperture import Aperture
-from thinning.lattice import Lattice
-from thinning.layout import Layout
-from thinning.problem import ThinningProblem
-from thinning.score import score_layout
+from thinning.analysis.score import score_layout
+from thinning.geometry.aperture import Aperture
+from thinning.geometry.lattice import Lattice
+from thinning.geometry.layout import Layout
 from thinning.search import run_method
+from thinning.search.problem import ThinningProblem
 from thinning.units import wavelength as wavelength_of
 
 FREQ = 10e9  # [Hz]

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-from thinning.aperture import Aperture
-from thinning.lattice import Lattice
+from thinning.geometry.aperture import Aperture
+from thinning.geometry.lattice import Lattice
 
 
 def small_spec(method: str = "random", evaluations: int = 300, extra: str = "") -> str:

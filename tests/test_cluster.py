@@ -14,15 +14,15 @@ pytest.importorskip("distributed")
 from distributed import LocalCluster  # noqa: E402
 from helpers import small_spec  # noqa: E402
 
-from thinning.cli import main  # noqa: E402
-from thinning.cluster import (  # noqa: E402
+from thinning.analysis.cluster import (  # noqa: E402
     ClusterError,
     ClusterRunner,
     SerialRunner,
     executor_for,
     multistart,
 )
-from thinning.sweep import run_sweep  # noqa: E402
+from thinning.analysis.sweep import run_sweep  # noqa: E402
+from thinning.cli import main  # noqa: E402
 
 SPEC = small_spec()
 

@@ -238,7 +238,7 @@ def test_robust_design_optimises_the_percentile_psl(tmp_path):
     pa = pr.evaluate(pr.genome_of_mask(a.mask)[None]).psl_db[0]
     pb = pr.evaluate(pr.genome_of_mask(b.mask)[None]).psl_db[0]
     assert pa <= pb + 1e-9
-    from thinning.design import run_design
+    from thinning.analysis.design import run_design
 
     res = run_design(rob, tmp_path / "out")
     r = res.metrics["robust"]

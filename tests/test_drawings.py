@@ -19,19 +19,19 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 
-from thinning.aperture import Aperture
-from thinning.drawing import (
+from thinning.errors import OutputError
+from thinning.geometry.aperture import Aperture
+from thinning.geometry.lattice import Lattice
+from thinning.geometry.layout import Layout
+from thinning.outputs import dxf as dxf_mod
+from thinning.outputs.drawing import (
     default_footprint_mm,
     layout_figure,
     layout_title,
     save_figure,
     write_layout_drawings,
 )
-from thinning.errors import OutputError
-from thinning.io import dxf as dxf_mod
-from thinning.io.dxf import DXF_LAYERS, write_layout_dxf
-from thinning.lattice import Lattice
-from thinning.layout import Layout
+from thinning.outputs.dxf import DXF_LAYERS, write_layout_dxf
 
 ezdxf = pytest.importorskip("ezdxf")
 

@@ -1,10 +1,10 @@
 """The compiled route of the search's evaluation against the numpy route and exact identities.
 
-:mod:`thinning.fastpath` does in compiled loops what :mod:`thinning.region`,
-:mod:`thinning.exact` and :mod:`thinning.pattern` do in numpy, with the same rules; both
-are checked against brute force and published values in test_pattern.py. Here the compiled
-figures must equal the numpy ones to rounding (an identity: the same sums in another order),
-and the compiled exact pattern must equal the direct sum of :class:`GridExact`.
+:mod:`thinning.engine.fastpath` does in compiled loops what :mod:`thinning.engine.region`,
+:mod:`thinning.engine.exact` and :mod:`thinning.engine.pattern` do in numpy, with the same
+rules; both are checked against brute force and published values in test_pattern.py. Here the
+compiled figures must equal the numpy ones to rounding (an identity: the same sums in another
+order), and the compiled exact pattern must equal the direct sum of :class:`GridExact`.
 """
 
 from __future__ import annotations
@@ -17,12 +17,12 @@ import time
 import numpy as np
 import pytest
 
-from thinning import fastpath
-from thinning.aperture import Aperture
-from thinning.exact import GridExact
-from thinning.lattice import Lattice
-from thinning.pattern import FFTPatternEngine
-from thinning.problem import ThinningProblem
+from thinning.engine import fastpath
+from thinning.engine.exact import GridExact
+from thinning.engine.pattern import FFTPatternEngine
+from thinning.geometry.aperture import Aperture
+from thinning.geometry.lattice import Lattice
+from thinning.search.problem import ThinningProblem
 
 LAM = 0.03  # [m]; every check is in wavelengths
 

@@ -13,12 +13,12 @@ from deap import creator, tools
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from thinning.aperture import Aperture
 from thinning.errors import SpecError
-from thinning.lattice import Lattice
-from thinning.problem import ThinningProblem
+from thinning.geometry.aperture import Aperture
+from thinning.geometry.lattice import Lattice
 from thinning.search import Tracker, run_method
 from thinning.search import genetic as ga
+from thinning.search.problem import ThinningProblem
 
 LAM = 0.03  # [m] 10 GHz; the 15 mm pitch is half a wavelength
 

@@ -22,9 +22,9 @@ import pytest
 from shapely.geometry import LinearRing, Point, Polygon
 from shapely.validation import explain_validity
 
-from thinning.aperture import BOUNDARY_TOLERANCE, Aperture
 from thinning.errors import GeometryError, InputError
-from thinning.lattice import (
+from thinning.geometry.aperture import BOUNDARY_TOLERANCE, Aperture
+from thinning.geometry.lattice import (
     Lattice,
     Sites,
     generated_lattice,

@@ -17,10 +17,10 @@ import pytest
 from helpers import rect_sites, tri_sites
 
 from thinning.errors import SpecError
-from thinning.lattice import Lattice
-from thinning.problem import ThinningProblem
+from thinning.geometry.lattice import Lattice
 from thinning.search import METHODS, run_method
 from thinning.search.ift import IFTPlan, ift_genomes, iterate
+from thinning.search.problem import ThinningProblem
 
 LAM = 0.03  # [m] 10 GHz; the 15 mm pitch is half a wavelength
 
@@ -240,9 +240,9 @@ def test_keizer_2008_published_case():
 def test_ift_seeds_the_genetic_search():
     """``seed_ift_fraction`` puts iterative-Fourier layouts into the first population; the
     run keeps the exact count (and, with the same seed, is deterministic)."""
-    from thinning.lattice import Lattice
-    from thinning.problem import ThinningProblem
+    from thinning.geometry.lattice import Lattice
     from thinning.search import run_method
+    from thinning.search.problem import ThinningProblem
 
     sites = Lattice.from_mm("linear", [15.0]).linear_sites(80)
     p = ThinningProblem(sites, 50, 0.03, 0.0, symmetry="mirror-x")

@@ -18,10 +18,10 @@ import numpy as np
 import pytest
 
 from thinning.errors import LayoutError, OutputError
+from thinning.geometry.lattice import Lattice, Sites
+from thinning.geometry.layout import GridFit, Layout
 from thinning.io.atomic import atomic_open, atomic_write, atomic_write_json
 from thinning.io.layout_csv import read_layout_csv, write_layout_csv
-from thinning.lattice import Lattice, Sites
-from thinning.layout import GridFit, Layout
 
 MM = 1e-3
 UM = 1e-6

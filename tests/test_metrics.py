@@ -14,11 +14,11 @@ from hypothesis import strategies as st
 from scipy.integrate import quad
 from scipy.special import j0
 
-from thinning import metrics
-from thinning.exact import GridExact
-from thinning.layout import Layout
-from thinning.pattern import FFTPatternEngine
-from thinning.score import score_layout
+from thinning.analysis.score import score_layout
+from thinning.engine import metrics
+from thinning.engine.exact import GridExact
+from thinning.engine.pattern import FFTPatternEngine
+from thinning.geometry.layout import Layout
 
 LAM = 0.03
 FREQ = 299792458.0 / LAM

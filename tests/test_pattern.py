@@ -13,8 +13,8 @@ import pytest
 from scipy.optimize import minimize_scalar
 from scipy.signal.windows import chebwin, taylor
 
-from thinning.exact import GridExact, PointExact
-from thinning.pattern import DirectPatternEngine, FFTPatternEngine
+from thinning.engine.exact import GridExact, PointExact
+from thinning.engine.pattern import DirectPatternEngine, FFTPatternEngine
 
 LAM = 0.03  # [m] 10 GHz; every check below is in wavelengths, so the value does not matter
 

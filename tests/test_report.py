@@ -13,12 +13,12 @@ import re
 import numpy as np
 import pytest
 
-from thinning import figures
+from thinning.analysis.score import layout_engine, score_layout
 from thinning.errors import OutputError
-from thinning.lattice import Lattice
-from thinning.layout import Layout
-from thinning.report import CAUTIONS, SECTIONS, build_report, report_for_layout
-from thinning.score import layout_engine, score_layout
+from thinning.geometry.lattice import Lattice
+from thinning.geometry.layout import Layout
+from thinning.outputs import figures
+from thinning.outputs.report import CAUTIONS, SECTIONS, build_report, report_for_layout
 from thinning.units import SPEED_OF_LIGHT
 
 FREQ = 10e9  # [Hz]

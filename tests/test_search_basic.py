@@ -16,12 +16,12 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.signal.windows import taylor
 
-from thinning import metrics
+from thinning.engine import metrics
 from thinning.errors import SpecError
-from thinning.lattice import Lattice
-from thinning.problem import SYMMETRIES, ThinningProblem
+from thinning.geometry.lattice import Lattice
 from thinning.search import run_method
 from thinning.search.density import draw, taper_probabilities, taper_values
+from thinning.search.problem import SYMMETRIES, ThinningProblem
 
 LAM = 0.03  # [m]  10 GHz
 

@@ -8,16 +8,10 @@ import math
 import numpy as np
 import pytest
 
+from thinning.analysis.stress import band_table, monte_carlo, scan_table
 from thinning.cli import main
-from thinning.layout import Layout
-from thinning.stress import (
-    ErrorModel,
-    amplitude_error_variance,
-    band_table,
-    error_floor,
-    monte_carlo,
-    scan_table,
-)
+from thinning.engine.excitation import ErrorModel, amplitude_error_variance, error_floor
+from thinning.geometry.layout import Layout
 
 LAM = 0.03
 F0 = 299792458.0 / LAM

@@ -7,9 +7,9 @@ import math
 import numpy as np
 import pytest
 
-from thinning.aperture import Aperture
-from thinning.lattice import Lattice
-from thinning.problem import ThinningProblem
+from thinning.geometry.aperture import Aperture
+from thinning.geometry.lattice import Lattice
+from thinning.search.problem import ThinningProblem
 
 
 def _moves(problem, genome, rng, k):

@@ -9,10 +9,10 @@ import numpy as np
 import pytest
 from helpers import small_spec
 
+from thinning.analysis.sweep import parse_budgets, steinberg_median_peak
 from thinning.cli import main
 from thinning.errors import SpecError
 from thinning.search.pareto import non_dominated
-from thinning.sweep import parse_budgets, steinberg_median_peak
 
 SPEC = small_spec(method="METHOD", extra="[requirements]\npsl_db = -12.0\n")
 

@@ -16,11 +16,11 @@ from pathlib import Path
 
 import numpy as np
 
-from .aperture import Aperture
 from .errors import SpecError, where
-from .lattice import LATTICE_KINDS, Lattice, Sites, grating_lobe_positions
-from .problem import OBJECTIVES, SYMMETRIES, ThinningProblem, outer_ring
+from .geometry.aperture import Aperture
+from .geometry.lattice import LATTICE_KINDS, Lattice, Sites, grating_lobe_positions
 from .search import METHODS
+from .search.problem import OBJECTIVES, SYMMETRIES, ThinningProblem, outer_ring
 from .units import deg_to_rad, ghz_to_hz, wavelength
 
 __all__ = ["Spec", "load_spec", "parse_spec", "KEYS", "EFFORT_EVALUATIONS"]
@@ -458,7 +458,7 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
     robust, rob = None, raw.get("robust")
     r_trials, r_pct, r_seed = 16, 90.0, 0
     if rob is not None:
-        from .stress import ErrorModel
+        from .engine.excitation import ErrorModel
 
         bits = rob.get("phase_bits")
         robust = ErrorModel(

@@ -34,7 +34,7 @@ def design(spec_toml, out_dir, workers, quiet):
     Progress goes to stderr; Ctrl-C or the spec's time limit end the run with the best layout
     so far written. The same spec and seed give the same layout.csv.
     """
-    from ..design import format_progress, run_design
+    from ..analysis.design import format_progress, run_design
     from ..spec import load_spec
 
     spec = load_spec(spec_toml)
@@ -63,7 +63,7 @@ def design(spec_toml, out_dir, workers, quiet):
 def _extra_outputs():
     """Drawings and the report, where the modules that write them are installed."""
     try:
-        from ..deliver import write_deliverables
+        from ..outputs.deliver import write_deliverables
     except ModuleNotFoundError:
         return None
     return write_deliverables

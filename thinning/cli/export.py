@@ -90,7 +90,7 @@ def export(
             ]
         }
         if freq_ghz is not None:
-            from ..score import score_layout
+            from ..analysis.score import score_layout
             from ..units import deg_to_rad, ghz_to_hz
 
             doc["metrics"] = score_layout(
@@ -103,7 +103,7 @@ def export(
         atomic_write_json(out, doc)
         files = [out]
     else:
-        from ..deliver import write_drawings
+        from ..outputs.deliver import write_drawings
 
         files = write_drawings(
             out.parent,
@@ -155,9 +155,9 @@ def report(
     trials,
 ):
     """Write a self-contained HTML design-review report for a layout file."""
-    from ..deliver import default_stress, write_report
     from ..errors import OutputError
     from ..io.layout_csv import read_layout_csv
+    from ..outputs.deliver import default_stress, write_report
     from ..units import deg_to_rad, ghz_to_hz
 
     layout = read_layout_csv(layout_csv)

@@ -68,9 +68,9 @@ def format_table(r: dict) -> str:
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
 def score(layout_csv, freq_ghz, scan_max_deg, element_exponent, sites, oversampling, as_json):
     """Score a layout: PSL, ASL, directivity, beamwidth and grating lobes."""
+    from ..analysis.score import score_layout
     from ..errors import LayoutError
     from ..io.layout_csv import read_layout_csv
-    from ..score import score_layout
     from ..units import deg_to_rad, ghz_to_hz
 
     layout = read_layout_csv(layout_csv)

@@ -85,8 +85,9 @@ def stress(
     as_json,
 ):
     """What the built array will do: scan, band edges, random errors and failures."""
+    from ..analysis.stress import stress_layout
+    from ..engine.excitation import ErrorModel
     from ..io.layout_csv import read_layout_csv
-    from ..stress import ErrorModel, stress_layout
     from ..units import deg_to_rad, ghz_to_hz
 
     layout = read_layout_csv(layout_csv)

@@ -43,7 +43,8 @@ __all__ = ["sweep"]
 @click.option("--quiet", is_flag=True, help="No progress on stderr.")
 def sweep(spec_toml, elements, fill, out_dir, workers, cluster, quiet):
     """Run the spec's method at several budgets and compare them with theory."""
-    from ..sweep import run_sweep, write_sweep_outputs
+    from ..analysis.sweep import run_sweep
+    from ..outputs.sweep_page import write_sweep_outputs
 
     def progress(n, meta):
         if not quiet:

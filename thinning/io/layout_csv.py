@@ -36,7 +36,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import LayoutError
-from ..layout import GRID_TOL, Layout
+from ..geometry.layout import GRID_TOL, Layout
 from ..units import m_to_mm, mm_to_m
 from .atomic import atomic_open
 

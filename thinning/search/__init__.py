@@ -1,4 +1,9 @@
-"""Search methods over the occupancy of the lattice, and what they share.
+"""Search: which sites get an element.
+
+Takes the candidate sites, the exact budget, the constraints and the objective as a
+:class:`~thinning.search.problem.ThinningProblem` (genomes over free symmetry orbits, batched
+evaluation through the pattern engine, swap moves from a stored transform); gives the best
+layout found and the history of the run. Uses the geometry and the engine only.
 
 Every method is a module with a function
 
@@ -21,7 +26,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..problem import BATCH, Evaluation
+from .problem import BATCH, Evaluation
 
 __all__ = ["METHODS", "SearchResult", "Tracker", "run_method", "method_module"]
 

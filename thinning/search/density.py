@@ -95,7 +95,7 @@ def taper_values(sites, kind: str = "taylor", sll_db: float = 30.0, nbar: int = 
 
     Parameters
     ----------
-    sites : thinning.lattice.Sites
+    sites : thinning.geometry.lattice.Sites
     kind : {"taylor", "uniform"}
     sll_db : float  [dB]
         Taylor design sidelobe level, positive (dB below the main lobe).

@@ -1,7 +1,7 @@
 """Genetic search over the occupancy, with count-preserving operators and swap refinement.
 
 A steady population of genomes (one boolean gene per free symmetry orbit, exactly
-``class_ones[c]`` genes on in every class c, see :mod:`thinning.problem`) evolves by
+``class_ones[c]`` genes on in every class c, see :mod:`thinning.search.problem`) evolves by
 
 * tournament selection (size ``tournament``) with the ``elite`` best carried over unchanged,
 * count-preserving crossover: per class, a child keeps the genes on which both parents agree

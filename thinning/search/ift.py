@@ -9,7 +9,7 @@ aperture, after Keizer, "Linear array thinning using iterative FFT techniques", 
    see :class:`IFTPlan`);
 2. in the sidelobe region — the samples with an alias in the disc of radius 1 + sin θmax, less
    the main beam of the current pattern cut at its first null (the region the score uses,
-   :class:`thinning.region.SampledRegion`) — every sample above the clip level L is scaled
+   :class:`thinning.engine.region.SampledRegion`) — every sample above the clip level L is scaled
    down to it, its phase kept:
 
    .. math::  AF'(u, v) = AF(u, v)\\,\\min\\bigl(1,\\ \\sqrt{L}\\,/\\,|AF(u, v)|\\bigr);
@@ -171,7 +171,7 @@ class IFTPlan:
     The excitations of the iteration are real, so their patterns are Hermitian,
     AF(−u, −v) = AF(u, v)*, and the half plane u ≥ 0 of the problem's own engine holds the
     whole period: the forward transform is a real FFT along x and a complex FFT along y (the
-    engine's :meth:`~thinning.pattern.FFTPatternEngine.power` layout), the inverse its exact
+    engine's :meth:`~thinning.engine.pattern.FFTPatternEngine.power` layout), the inverse its exact
     inverse. Clipping by a real factor that is the same at (u, v) and (−u, −v) keeps the
     symmetry, so nothing is lost against a complex transform of the full plane.
     """

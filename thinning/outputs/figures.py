@@ -7,7 +7,7 @@ its own:
 
 * :func:`uv_power_map` — the normalised power |AF|²/(Σa)² on a dense u-v grid. On a lattice
   it is one zero-padded 2-D FFT of the excitation, read periodically; off any lattice it is
-  the exact sum (:mod:`thinning.exact`) on a regular grid.
+  the exact sum (:mod:`thinning.engine.exact`) on a regular grid.
 * :func:`principal_cuts` — the exact pattern along v = 0 (x-z plane) and u = 0 (y-z plane)
   against the angle θ from boresight.
 * :func:`scan_psl_table` — the worst sidelobe of the sampled pattern for beams steered across
@@ -16,7 +16,7 @@ its own:
 All pattern figures are array-factor figures (isotropic elements), as PSL and ASL are in
 conventions.md; powers are in dB relative to the beam peak and clipped at a floor.
 
-This module imports matplotlib; only commands and :mod:`thinning.report` import it.
+This module imports matplotlib; only commands and :mod:`thinning.outputs.report` import it.
 """
 
 from __future__ import annotations
@@ -30,8 +30,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import Circle
 
-from .layout import Layout
-from .score import layout_engine
+from ..analysis.score import layout_engine
+from ..geometry.layout import Layout
 
 __all__ = [
     "FLOOR_DB",
@@ -607,7 +607,7 @@ def fig_layout(layout: Layout, aperture=None, sites=None) -> Figure:
     Parameters
     ----------
     layout : Layout
-    aperture : thinning.aperture.Aperture, optional
+    aperture : thinning.geometry.aperture.Aperture, optional
     sites : (M, 2) array, optional  [m]   every candidate site
     """
     x, y = layout.x * 1e3, layout.y * 1e3

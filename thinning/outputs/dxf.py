@@ -29,7 +29,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .atomic import atomic_write
+from ..io.atomic import atomic_write
 
 __all__ = ["write_layout_dxf", "DXF_LAYERS", "DXF_VERSION"]
 
@@ -88,18 +88,18 @@ def write_layout_dxf(
     path : str or os.PathLike
         The ``.dxf`` file to write; its folder must exist. Written atomically: the file appears
         complete or not at all.
-    layout : thinning.layout.Layout
+    layout : thinning.geometry.layout.Layout
         Element positions  [m]; written in mm.
-    aperture : thinning.aperture.Aperture, optional
+    aperture : thinning.geometry.aperture.Aperture, optional
         The panel. When None (for example a layout file scored without its spec) no outline,
         holes or clearance are drawn: the OUTLINE, HOLES and CLEARANCE layers exist but are
         empty.
     footprint_mm : float, optional  [mm]
         Diameter of the element circles. Default: 0.8 × the smallest distance between two
-        elements (:func:`thinning.drawing.default_footprint_mm`).
+        elements (:func:`thinning.outputs.drawing.default_footprint_mm`).
     title : str, optional
         Text on the TITLE layer, above the drawing; one TEXT per line. Default: the element
-        count (:func:`thinning.drawing.layout_title` makes a fuller one).
+        count (:func:`thinning.outputs.drawing.layout_title` makes a fuller one).
     labels : bool
         Write each element's id on the LABELS layer, height footprint/3, to the upper right of
         its circle.
@@ -118,7 +118,7 @@ def write_layout_dxf(
     """
     import ezdxf
 
-    from ..drawing import _footprint, _rings_mm, layout_title
+    from .drawing import _footprint, _rings_mm, layout_title
 
     path = Path(path)
     d = _footprint(layout, footprint_mm)

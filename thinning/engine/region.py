@@ -352,7 +352,7 @@ class SampledRegion:
 
     # -- tables for the compiled route ------------------------------------------------------
     def fast_tables(self, dtype=np.float32) -> FastTables:
-        """The region and its main-beam windows as flat arrays, for :mod:`thinning.fastpath`
+        """The region and its main-beam windows as flat arrays, for :mod:`thinning.engine.fastpath`
         (cached; the sample weights in ``dtype``)."""
         dtype = np.dtype(dtype)
         if getattr(self, "_fast", None) is None:

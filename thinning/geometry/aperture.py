@@ -17,7 +17,7 @@ import shapely
 from shapely import affinity
 from shapely.geometry import LinearRing, Polygon
 
-from .errors import GeometryError, where
+from ..errors import GeometryError, where
 
 __all__ = ["Aperture", "BOUNDARY_TOLERANCE"]
 

@@ -1,6 +1,6 @@
 """Array-factor power patterns on u-v sample grids, and the sidelobe figures they give.
 
-Two engines hand the same kind of sample grid to :class:`thinning.region.SampledRegion`:
+Two engines hand the same kind of sample grid to :class:`thinning.engine.region.SampledRegion`:
 
 * :class:`FFTPatternEngine` for excitations on a rectangular index grid (rectangular lattices
   directly, triangular lattices as a checkerboard of the grid of pitch (dx/2, dy), linear
@@ -12,9 +12,9 @@ Two engines hand the same kind of sample grid to :class:`thinning.region.Sampled
   product (the sum separates into exp(j k x u)·exp(j k y v)).
 
 Either way the PSL is found on the samples and then refined on the exact pattern
-(:mod:`thinning.exact`) so that it is within 0.05 dB of the true maximum. The search's
+(:mod:`thinning.engine.exact`) so that it is within 0.05 dB of the true maximum. The search's
 evaluations of lattice layouts run the same rules in compiled loops
-(:mod:`thinning.fastpath`); the numpy route here is the reference they are tested against.
+(:mod:`thinning.engine.fastpath`); the numpy route here is the reference they are tested against.
 """
 
 from __future__ import annotations
@@ -192,7 +192,7 @@ class FFTPatternEngine(_Engine):
         excitations (errors, steering phases), whose pattern has no mirror symmetry, and for
         sidelobe discs off the origin (:meth:`region_for`).
     compiled : bool
-        Score the search's evaluations with the compiled loops of :mod:`thinning.fastpath`
+        Score the search's evaluations with the compiled loops of :mod:`thinning.engine.fastpath`
         (default) instead of the numpy route; both give the same figures.
     """
 
@@ -325,7 +325,7 @@ class FFTPatternEngine(_Engine):
         return self._evaluate_numpy(a, power, refine, region)
 
     def _evaluate_compiled(self, a, refine, region) -> Scores:
-        """:meth:`evaluate` by :func:`thinning.fastpath.fast_scores` from the transform."""
+        """:meth:`evaluate` by :func:`thinning.engine.fastpath.fast_scores` from the transform."""
         from . import fastpath
 
         f = self.transform(a)
@@ -351,7 +351,7 @@ class FFTPatternEngine(_Engine):
         return Scores(psl, asl, uv)
 
     def _work(self, dtype, n):
-        """Work buffers of :func:`thinning.fastpath.fast_scores` (kept between calls)."""
+        """Work buffers of :func:`thinning.engine.fastpath.fast_scores` (kept between calls)."""
         key = (np.dtype(dtype), n)
         if key not in self._buffers:
             self._buffers[key] = (np.empty(n, dtype=dtype), np.empty(n, dtype=np.int64))

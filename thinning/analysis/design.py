@@ -14,14 +14,14 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from .errors import OutputError, SpecError
-from .io.atomic import atomic_write_json
-from .io.layout_csv import write_layout_csv
-from .layout import Layout
+from .. import __version__
+from ..errors import OutputError, SpecError
+from ..geometry.layout import Layout
+from ..io.atomic import atomic_write_json
+from ..io.layout_csv import write_layout_csv
+from ..search import SearchResult, run_method
+from ..spec import Spec
 from .score import score_layout
-from .search import SearchResult, run_method
-from .spec import Spec
 
 __all__ = ["DesignResult", "run_design", "prepare_output", "layout_metadata"]
 

@@ -16,11 +16,11 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 import shapely
 
-from . import metrics
-from .lattice import generated_lattice, grating_lobe_positions
-from .layout import Layout
-from .pattern import DirectPatternEngine, FFTPatternEngine
-from .units import to_db
+from ..engine import metrics
+from ..engine.pattern import DirectPatternEngine, FFTPatternEngine
+from ..geometry.lattice import generated_lattice, grating_lobe_positions
+from ..geometry.layout import Layout
+from ..units import to_db
 
 __all__ = ["ScoreResult", "score_layout", "layout_engine"]
 
@@ -158,7 +158,7 @@ def score_layout(
     oversampling : float   FFT (or direct grid) samples per null width, per axis
     workers : int   threads for scipy.fft
     """
-    from .units import wavelength as wl
+    from ..units import wavelength as wl
 
     lam = wl(frequency)
     n = len(layout)

@@ -23,9 +23,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import SpecError, where
-from .lattice import Sites
-from .pattern import FFTPatternEngine
+from ..engine.pattern import FFTPatternEngine
+from ..errors import SpecError, where
+from ..geometry.lattice import Sites
 
 __all__ = ["SYMMETRIES", "OBJECTIVES", "ThinningProblem", "Evaluation"]
 
@@ -112,7 +112,7 @@ class _SwapBase:
     """
 
     def __init__(self, engine, genome, grid, f0=None, shared=None):
-        from . import fastpath
+        from ..engine import fastpath
 
         region = engine.region
         g = region.grid
@@ -218,8 +218,8 @@ class _SwapBase:
         return self._ext[w]
 
     def asl_change(self, rows, cols, signs):
-        """Σ w|F + Δ|² − Σ w|F|² of each move (:func:`thinning.fastpath.swap_asl_terms`)."""
-        from . import fastpath
+        """Σ w|F + Δ|² − Σ w|F|² of each move (:func:`thinning.engine.fastpath.swap_asl_terms`)."""
+        from ..engine import fastpath
 
         cross, quad = fastpath.call(
             fastpath.swap_asl_terms,
@@ -253,7 +253,7 @@ class ThinningProblem:
     secondary_weight : float  [1]
     oversampling : float
     source : str, optional   spec file name, for messages
-    robust : thinning.stress.ErrorModel, optional
+    robust : thinning.engine.excitation.ErrorModel, optional
         Robust design: score each layout by a percentile of its PSL over ``robust_trials``
         random error draws (common to every layout, so that layouts are compared under the
         same errors) instead of its nominal PSL; the ASL is the mean over the draws. Costs
@@ -361,7 +361,7 @@ class ThinningProblem:
             self._init_robust()
 
     def _init_robust(self):
-        from .stress import ErrorModel
+        from ..engine.excitation import ErrorModel
 
         model: ErrorModel = self.robust
         if model.failures >= self.elements:
@@ -530,10 +530,10 @@ class ThinningProblem:
         * its ASL is exact: Σ w|F + Δ|² − Σ w|F|² = 2 Re Σ_s ±H(x_s) + Σ_{s,t} ±± W(x_s − x_t),
           with W the transform of the region weights (one per problem, less the main beam's
           few samples) and H(x) = Σ_m a_m W(x − m) at the switched sites only
-          (:func:`thinning.fastpath.swap_asl_terms`);
+          (:func:`thinning.engine.fastpath.swap_asl_terms`);
         * its candidate lobes are refined on the exact pattern as in :meth:`evaluate`.
 
-        The updates, candidates and refinement run in :func:`thinning.fastpath.swap_scores`.
+        The updates, candidates and refinement run in :func:`thinning.engine.fastpath.swap_scores`.
         The main-beam cut is the base layout's (one swap barely moves the first null); the
         figures agree with :meth:`evaluate` of the swapped layouts to float32 rounding
         (checked in the tests). A robust problem falls back to :meth:`evaluate`.
@@ -543,7 +543,7 @@ class ThinningProblem:
         base_genome : (G,) bool
         off_genes, on_genes : (K,) int   gene switched off (on) by each move; must be on (off)
         """
-        from . import fastpath
+        from ..engine import fastpath
 
         base = np.asarray(base_genome, dtype=bool)
         off = np.atleast_1d(np.asarray(off_genes, dtype=np.int64))

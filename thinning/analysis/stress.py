@@ -31,74 +31,26 @@ Three analyses of one layout:
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 import numpy as np
 
-from . import metrics
-from .errors import LayoutError
-from .exact import GridExact, refine_peaks
-from .lattice import generated_lattice, grating_lobe_positions
-from .layout import Layout
-from .pattern import DirectPatternEngine, FFTPatternEngine
+from ..engine import metrics
+from ..engine.exact import GridExact, refine_peaks
+from ..engine.excitation import ErrorModel, error_floor
+from ..engine.pattern import DirectPatternEngine, FFTPatternEngine
+from ..errors import LayoutError
+from ..geometry.lattice import generated_lattice, grating_lobe_positions
+from ..geometry.layout import Layout
+from ..units import to_db
+from ..units import wavelength as wavelength_of
 from .score import layout_engine
-from .units import to_db
-from .units import wavelength as wavelength_of
 
 __all__ = [
-    "ErrorModel",
     "scan_table",
     "band_table",
     "monte_carlo",
-    "error_floor",
-    "amplitude_error_variance",
     "stress_layout",
 ]
-
-
-@dataclass(frozen=True)
-class ErrorModel:
-    """Random errors of a built array.
-
-    Parameters
-    ----------
-    amplitude_db : float  [dB]   rms amplitude error
-    phase_deg : float  [deg]     rms phase error
-    phase_bits : int or None     phase-shifter bits (None: continuous phase)
-    failures : int               elements failed (off) per trial
-    """
-
-    amplitude_db: float = 0.0
-    phase_deg: float = 0.0
-    phase_bits: int | None = None
-    failures: int = 0
-
-    @property
-    def any(self) -> bool:
-        return bool(self.amplitude_db or self.phase_deg or self.phase_bits or self.failures)
-
-
-def amplitude_error_variance(amplitude_db: float) -> float:
-    """δ² = E[(10^{ε/20} − 1)²] for ε ~ N(0, S²) dB  [1] (exact for the log-normal)."""
-    s = amplitude_db * math.log(10) / 20
-    return math.exp(2 * s * s) - 2 * math.exp(s * s / 2) + 1
-
-
-def quantisation_variance(bits: int | None) -> float:
-    """σ_q² = π²/(3·2^{2B}) rad² of decorrelated B-bit phase quantisation (row 12)."""
-    if not bits:
-        return 0.0
-    return math.pi**2 / (3 * 4.0**bits)
-
-
-def error_floor(n: int, weights, model: ErrorModel) -> float:
-    """The published ASL floor of random errors and failures  [1, linear] (module docstring)."""
-    a = np.asarray(weights, dtype=float)
-    eta = float(a.sum() ** 2 / (a.size * (a**2).sum()))
-    p = (n - model.failures) / n
-    d2 = amplitude_error_variance(model.amplitude_db)
-    ph2 = math.radians(model.phase_deg) ** 2 + quantisation_variance(model.phase_bits)
-    return ((1 - p) + d2 + p * ph2) / (p * eta * n)
 
 
 # -- set-up -----------------------------------------------------------------------------------

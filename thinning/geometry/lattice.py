@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import GeometryError, where
+from ..errors import GeometryError, where
 
 __all__ = [
     "LATTICE_KINDS",

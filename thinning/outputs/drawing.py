@@ -3,7 +3,7 @@
 The sheet shows the panel outline, its holes, the clearance boundary (dashed), every element as
 a circle of its footprint diameter, optionally every candidate lattice site as a grey dot (so
 that the thinned-out sites show), element ids for small arrays, a legend and a title. Axes are
-in millimetres. The DXF for mechanical CAD is written by :mod:`thinning.io.dxf`; both use the
+in millimetres. The DXF for mechanical CAD is written by :mod:`thinning.outputs.dxf`; both use the
 same default footprint (:func:`default_footprint_mm`).
 
 matplotlib is imported inside the functions that draw, so importing this module is cheap. The
@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .io.atomic import atomic_write
+from ..io.atomic import atomic_write
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -74,7 +74,7 @@ def default_footprint_mm(layout) -> float:
 
     Parameters
     ----------
-    layout : thinning.layout.Layout
+    layout : thinning.geometry.layout.Layout
 
     Returns
     -------
@@ -111,10 +111,10 @@ def layout_title(
 
     Parameters
     ----------
-    layout : thinning.layout.Layout
+    layout : thinning.geometry.layout.Layout
     frequency_hz : float, optional  [Hz]
         Shown in GHz.
-    lattice : thinning.lattice.Lattice or str, optional
+    lattice : thinning.geometry.lattice.Lattice or str, optional
         A Lattice is shown as its kind and pitch in mm.
     date : datetime.date or str, optional
         Left out when None, so that the same inputs give the same drawing.
@@ -192,8 +192,8 @@ def layout_figure(
 
     Parameters
     ----------
-    layout : thinning.layout.Layout
-    aperture : thinning.aperture.Aperture, optional
+    layout : thinning.geometry.layout.Layout
+    aperture : thinning.geometry.aperture.Aperture, optional
         Outline, holes and (when ``edge_clearance > 0``) the clearance boundary, dashed.
         Without it only the elements are drawn.
     footprint_mm : float, optional  [mm]
@@ -202,7 +202,7 @@ def layout_figure(
         Default: the element count (see :func:`layout_title` for a fuller one).
     labels : bool, optional
         Draw element ids. None: only when there are at most :data:`LABEL_LIMIT` elements.
-    sites : (M, 2) array_like or thinning.lattice.Sites, optional  [m]
+    sites : (M, 2) array_like or thinning.geometry.lattice.Sites, optional  [m]
         All candidate sites, drawn as small grey dots beneath the elements.
 
     Returns
@@ -365,13 +365,13 @@ def write_layout_drawings(
     ----------
     out_dir : str or os.PathLike
         An existing folder.
-    layout : thinning.layout.Layout
-    aperture : thinning.aperture.Aperture, optional
+    layout : thinning.geometry.layout.Layout
+    aperture : thinning.geometry.aperture.Aperture, optional
     stem : str
         File name without suffix.
     footprint_mm : float, optional  [mm]
     title : str, optional
-    sites : (M, 2) array_like or thinning.lattice.Sites, optional  [m]
+    sites : (M, 2) array_like or thinning.geometry.lattice.Sites, optional  [m]
     formats : iterable of {"svg", "png", "pdf"}
 
     Returns

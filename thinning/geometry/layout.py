@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import LayoutError, where
+from ..errors import LayoutError, where
 
 __all__ = ["Layout", "GridFit", "GRID_TOL", "MAX_GRID_POINTS"]
 
@@ -91,7 +91,7 @@ class Layout:
     ids : numpy.ndarray of str or None
         Element names; None means "1" … "N" in this order (see :attr:`element_ids`).
     row, col : numpy.ndarray of int or None
-        Indices on the lattice's rectangular index grid (see :mod:`thinning.lattice`), when
+        Indices on the lattice's rectangular index grid (see :mod:`thinning.geometry.lattice`), when
         known.
     source : str or None
         Where the layout came from (a file name), for messages.
@@ -174,11 +174,11 @@ class Layout:
 
     @classmethod
     def from_sites(cls, sites, mask=None, amplitude=None, source: str | None = None) -> Layout:
-        """The layout of the chosen sites of a :class:`thinning.lattice.Sites`.
+        """The layout of the chosen sites of a :class:`thinning.geometry.lattice.Sites`.
 
         Parameters
         ----------
-        sites : thinning.lattice.Sites
+        sites : thinning.geometry.lattice.Sites
         mask : array_like of bool, optional
             One flag per site (``len(sites)``); True = the site gets an element. None = all.
         amplitude : array_like of float, optional  [1]

@@ -30,7 +30,7 @@ def write_drawings(
 ) -> list[Path]:
     """layout.dxf / layout.svg / layout.png (whichever ``formats`` asks for)."""
     from .drawing import layout_title, write_layout_drawings
-    from .io.dxf import write_layout_dxf
+    from .dxf import write_layout_dxf
 
     today = _dt.date.today()
     title = layout_title(layout, frequency_hz=frequency_hz, lattice=lattice, name=name)
@@ -63,7 +63,8 @@ def write_drawings(
 def default_stress(layout, frequency, scan_max, q, spec_stress: dict | None, robust=None):
     """The built-array analysis for the report: the scan table always; band edges and Monte
     Carlo errors when the spec states them ([stress] or [robust])."""
-    from .stress import ErrorModel, stress_layout
+    from ..analysis.stress import stress_layout
+    from ..engine.excitation import ErrorModel
 
     cfg = dict(spec_stress or {})
     band = cfg.get("band_ghz")
@@ -128,7 +129,7 @@ def write_report(
 
 def write_deliverables(result, out: Path) -> list[Path]:
     """Drawings, the best-of-random baseline and report.html for a finished design."""
-    from .search import run_method
+    from ..search import run_method
 
     spec = result.spec
     fp = spec.output.get("footprint_mm")
@@ -204,7 +205,7 @@ def write_deliverables(result, out: Path) -> list[Path]:
         )
     )
     if baseline is not None:  # layout.json gains the baseline figures
-        from .io.atomic import atomic_write_json
+        from ..io.atomic import atomic_write_json
 
         atomic_write_json(out / "layout.json", result.metrics)
     return files

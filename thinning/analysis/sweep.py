@@ -32,15 +32,15 @@ from pathlib import Path
 
 import numpy as np
 
+from ..engine.metrics import expected_asl_random
+from ..errors import SpecError
+from ..geometry.layout import Layout
+from ..io.atomic import atomic_write, atomic_write_json
+from ..io.layout_csv import write_layout_csv
+from ..spec import Spec, load_spec
+from ..units import to_db
 from .cluster import executor_for, spec_from_text
 from .design import prepare_output, score_spec_layout, search_and_score
-from .errors import SpecError
-from .io.atomic import atomic_write, atomic_write_json
-from .io.layout_csv import write_layout_csv
-from .layout import Layout
-from .metrics import expected_asl_random
-from .spec import Spec, load_spec
-from .units import to_db
 
 __all__ = [
     "SWEEP_COLUMNS",
@@ -204,7 +204,7 @@ def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict
 
     A rerun reuses a front already written for the same spec, method, seed and range.
     """
-    from .search.pareto import run_pareto
+    from ..search.pareto import run_pareto
 
     lo, hi = min(budgets), max(budgets)
     try:
@@ -284,8 +284,8 @@ def density_expected_asl(problem, spec: Spec) -> float:
     E|AF|² = |Σ pₙ e^{jψ}|² + Σ pₙ(1 − pₙ) (references.md row 5; Skolnik, Sherman & Ogg 1964):
     the sidelobes of the aperture weighted by the probabilities plus Σp(1 − p)/(Σp)².
     """
-    from .metrics import expected_asl_tapered
-    from .search.density import taper_probabilities
+    from ..engine.metrics import expected_asl_tapered
+    from ..search.density import taper_probabilities
 
     pg = taper_probabilities(problem, spec.options)
     p = np.where(problem.site_gene >= 0, pg[np.maximum(problem.site_gene, 0)], 0.0)
@@ -319,7 +319,7 @@ def run_sweep(
     The budgets run in this process, in ``workers`` local processes, or on the Dask cluster
     at ``cluster`` (a scheduler address; ``workers`` is then ignored); the results do not
     depend on which. The spec's text goes to the workers and their layouts come back, so
-    every file is written here (see :mod:`thinning.cluster`).
+    every file is written here (see :mod:`thinning.analysis.cluster`).
     """
     spec = load_spec(spec_path)
     sites = spec.sites()
@@ -436,113 +436,3 @@ def theory_curves(res: SweepResult, n_points: int = 200) -> dict:
         "steinberg_median_psl_db": 10 * np.log10(med),
         "pi_n_dbi": rule,
     }
-
-
-def sweep_figure(res: SweepResult):
-    """PSL and ASL against N with the theory curves; directivity against N with the rule."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    th = theory_curves(res)
-    n = np.array([r["elements"] for r in res.rows])
-    fig = Figure(figsize=(11.0, 4.6))
-    FigureCanvasAgg(fig)
-    a, b = fig.subplots(1, 2)
-    a.plot(n, [r["psl_db"] for r in res.rows], "o-", color="C3", label="PSL, this search")
-    a.plot(n, [r["asl_db"] for r in res.rows], "s-", color="C0", label="ASL, this search")
-    a.plot(
-        th["elements"],
-        th["steinberg_median_psl_db"],
-        "--",
-        color="C3",
-        alpha=0.7,
-        label="median PSL of random thinning (Steinberg)",
-    )
-    a.plot(
-        th["elements"],
-        th["expected_asl_db"],
-        "--",
-        color="C0",
-        alpha=0.7,
-        label="expected ASL of random thinning",
-    )
-    a.axhline(
-        res.filled["psl_db"],
-        color="0.4",
-        lw=1,
-        ls=":",
-        label=f"filled aperture PSL ({res.filled['elements']} sites)",
-    )
-    if res.requirement is not None:
-        a.axhline(res.requirement, color="k", lw=1.2, label=f"requirement {res.requirement:g} dB")
-    a.set_xlabel("active elements N")
-    a.set_ylabel("level relative to the main beam [dB]")
-    a.set_title("Sidelobes against element count")
-    a.grid(alpha=0.3)
-    a.legend(fontsize=7, loc="best")
-    b.plot(n, [r["directivity_dbi"] for r in res.rows], "o-", color="C2", label="directivity")
-    b.plot(
-        th["elements"],
-        th["pi_n_dbi"],
-        "--",
-        color="C2",
-        alpha=0.7,
-        label="cell-gain rule 4πN·A_cell/λ²",
-    )
-    b.set_xlabel("active elements N")
-    b.set_ylabel("directivity [dBi]")
-    b.set_title("Directivity against element count")
-    b.grid(alpha=0.3)
-    b.legend(fontsize=8)
-    fig.tight_layout()
-    return fig
-
-
-def write_sweep_outputs(res: SweepResult) -> list[Path]:
-    """sweep.png and the self-contained sweep.html."""
-    import base64
-    import html
-
-    buf = io.BytesIO()
-    sweep_figure(res).savefig(buf, format="png", dpi=110)
-    png = buf.getvalue()
-    files = [res.folder / "sweep.png", res.folder / "sweep.html"]
-    atomic_write(files[0], png)
-    e = html.escape
-    cols = [c for c in SWEEP_COLUMNS if c not in ("folder", "stopped_by")]
-    head = "".join(f"<th>{e(c)}</th>" for c in cols)
-    body = "".join(
-        "<tr>" + "".join(f"<td>{e(str(r[c]))}</td>" for c in cols) + "</tr>" for r in res.rows
-    )
-    if res.requirement is None:
-        answer = "No PSL requirement in the spec ([requirements] psl_db)."
-    elif res.smallest_meeting is None:
-        answer = f"No budget in this sweep meets PSL ≤ {res.requirement:g} dB."
-    else:
-        s = res.smallest_meeting
-        answer = (
-            f"The smallest budget in this sweep that meets PSL ≤ {res.requirement:g} dB is "
-            f"<b>{s['elements']} elements</b> (PSL {s['psl_db']:.2f} dB); its layout is in "
-            f"<code>{e(s['folder'])}/layout.csv</code>."
-        )
-    from .report import CAUTIONS
-
-    b64 = base64.b64encode(png).decode()
-
-    doc = f"""<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">
-<title>Thinning sweep</title><style>body{{font-family:system-ui,sans-serif;max-width:1100px;
-margin:auto;padding:1em}}table{{border-collapse:collapse;font-size:.85em}}td,th{{border:1px solid
-#ccc;padding:.2em .5em}}img{{max-width:100%}}</style></head><body>
-<h1>Budget against sidelobes: {e(Path(res.spec.source).name)}</h1>
-<h2 id="answer">Answer</h2><p>{answer}</p>
-<h2 id="figure">Trade</h2><img alt="sweep" src="data:image/png;base64,{b64}">
-<p>Theory: expected ASL of random thinning N of M = {res.sites} sites (with the filled aperture's
-own sidelobes); Steinberg's median peak of random arrays with n_s ≈ {res.independent_samples:.0f}
-independent sidelobe samples; the filled aperture's PSL; the cell-gain rule.</p>
-<h2 id="table">Budgets</h2><table><tr>{head}</tr>{body}</table>
-<h2 id="cautions">Cautions</h2><ul>{"".join(f"<li>{e(c)}</li>" for c in CAUTIONS)}</ul>
-<h2 id="provenance">Provenance</h2><p>method {e(res.spec.method)}, seed {res.spec.seed}, spec
-digest {e(res.spec.digest)}</p></body></html>
-"""
-    atomic_write(files[1], doc)
-    return files

@@ -29,7 +29,7 @@ import tomllib
 from concurrent.futures import ProcessPoolExecutor
 from typing import NamedTuple
 
-from .errors import SpecError, ThinningError
+from ..errors import SpecError, ThinningError
 
 __all__ = [
     "ClusterError",
@@ -270,7 +270,7 @@ def spec_from_text(text: str, source: str):
 
     UTF-8 round-trips exactly, so the digest equals the one ``load_spec`` computes.
     """
-    from .spec import parse_spec
+    from ..spec import parse_spec
 
     try:
         raw = tomllib.loads(text)
@@ -288,7 +288,7 @@ class Start(NamedTuple):
 
 def _run_start(spec_text: str, source: str, seed: int):
     """One start (a work unit): the spec's method, budget and limits, with ``seed``."""
-    from .search import run_method
+    from ..search import run_method
 
     spec = spec_from_text(spec_text, source)
     problem = spec.problem(spec.sites())

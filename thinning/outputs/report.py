@@ -21,9 +21,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import OutputError
-from .io.atomic import atomic_write
-from .layout import Layout
+from ..errors import OutputError
+from ..geometry.layout import Layout
+from ..io.atomic import atomic_write
 
 __all__ = ["CAUTIONS", "SECTIONS", "build_report", "report_for_layout"]
 
@@ -357,7 +357,8 @@ def _table(rows, columns) -> str:
 
 
 def _stress(stress) -> str:
-    """The scan, band-edge and Monte Carlo tables of :func:`thinning.stress.stress_layout`."""
+    """The scan, band-edge and Monte Carlo tables of
+    :func:`thinning.analysis.stress.stress_layout`."""
     if stress is None:
         return '<p class="missing">Not run (give the error model to analyse the built array).</p>'
     parts = [
@@ -455,7 +456,7 @@ def build_report(
     path : str or os.PathLike
         The HTML file; its folder must exist.
     metrics : dict
-        Figures of the layout, as :meth:`thinning.score.ScoreResult.to_dict` gives them.
+        Figures of the layout, as :meth:`thinning.analysis.score.ScoreResult.to_dict` gives them.
     layout : Layout, optional
         Only used to fill in the element count when ``metrics`` lacks it.
     layout_png : bytes, optional
@@ -474,9 +475,9 @@ def build_report(
     cautions : sequence of str
     title : str
     scan_table : dict, optional
-        From :func:`thinning.figures.scan_psl_table`.
+        From :func:`thinning.outputs.figures.scan_psl_table`.
     stress : dict, optional
-        From :func:`thinning.stress.stress_layout`; None prints "not run".
+        From :func:`thinning.analysis.stress.stress_layout`; None prints "not run".
 
     Returns
     -------
@@ -487,7 +488,7 @@ def build_report(
     OutputError
         The file cannot be written (nothing is left behind).
     """
-    from . import __version__
+    from .. import __version__
 
     path = Path(path)
     figures = dict(figures or {})
@@ -570,7 +571,7 @@ def report_for_layout(
     frequency_hz : float  [Hz]
     scan_max : float  [rad]
     q : float  [1]   element-pattern exponent
-    aperture : thinning.aperture.Aperture, optional   drawn with the layout
+    aperture : thinning.geometry.aperture.Aperture, optional   drawn with the layout
     sites : (M, 2) array, optional  [m]
         Every candidate site: the filled aperture in the cuts, the empty sites in the drawing,
         and M for the fill and the random-thinning expectation.
@@ -580,7 +581,7 @@ def report_for_layout(
     layout_png : bytes, optional   a drawing to use instead of the built-in one
     title : str
     metrics : dict, optional   the layout's figures if already computed (else scored here)
-    stress : dict, optional    :func:`thinning.stress.stress_layout` output
+    stress : dict, optional    :func:`thinning.analysis.stress.stress_layout` output
 
     Returns
     -------
@@ -591,9 +592,9 @@ def report_for_layout(
     OutputError
         The folder is missing or the file cannot be written.
     """
+    from ..analysis.score import score_layout
+    from ..units import wavelength as _wavelength
     from . import figures as fg
-    from .score import score_layout
-    from .units import wavelength as _wavelength
 
     path = Path(path)
     if not path.parent.is_dir():
