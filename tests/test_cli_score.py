@@ -8,6 +8,7 @@ import subprocess
 import sys
 
 import pytest
+from helpers import TRI_PANEL
 
 from thinning.cli import main
 
@@ -120,26 +121,16 @@ def test_subprocess_error_has_no_traceback(tmp_path):
 
 
 # -- score --spec, the site count, one element, beamwidths, progress ----------------------------
-SPEC = """
-name = "score-check"
-[array]
-frequency_ghz = 10.0
-lattice = "triangular"
-spacing_mm = 17.0
-[aperture]
-outline_mm = [[-90, -80], [90, -80], [90, 80], [-90, 80]]
-holes_mm = [[[-10, -10], [10, -10], [10, 10], [-10, 10]]]
-edge_clearance_mm = 3.0
-[budget]
-fill = 0.5
-[scan]
-max_deg = 20.0
-[search]
+SPEC = (
+    'name = "score-check"\n'
+    + TRI_PANEL
+    + """[search]
 method = "random"
 seed = 2
 evaluations = 200
 oversampling = 5.0
 """
+)
 
 
 def _close(a, b, tol=1e-6) -> bool:

@@ -11,9 +11,8 @@ import time
 
 import numpy as np
 import pytest
-from helpers import small_spec
+from helpers import run_cli, small_spec, write_spec
 
-from thinning.cli import main
 from thinning.errors import GeometryError, SpecError
 from thinning.io.layout_csv import read_layout_csv
 from thinning.search import run_method
@@ -22,16 +21,8 @@ from thinning.spec import load_spec, parse_spec
 SMALL = small_spec(evaluations=600)
 
 
-def write(tmp_path, text, name="spec.toml"):
-    p = tmp_path / name
-    p.write_text(text)
-    return p
-
-
-def run(capsys, *args):
-    code = main([str(a) for a in args])
-    out = capsys.readouterr()
-    return code, out.out, out.err
+write = write_spec
+run = run_cli
 
 
 # -- validation ------------------------------------------------------------------------------

@@ -12,6 +12,7 @@ import re
 
 import numpy as np
 import pytest
+from helpers import TRI_PANEL
 
 from thinning.analysis.score import layout_engine, score_layout
 from thinning.errors import OutputError
@@ -385,26 +386,18 @@ def test_summary_names_the_spec_constraints_and_appendix(tmp_path):
     from thinning.analysis.requirements import judge
     from thinning.spec import load_spec
 
-    text = """name = "review-panel"
-description = "an invented panel for the review test"
-[array]
-frequency_ghz = 10.0
-lattice = "triangular"
-spacing_mm = 17.0
-[aperture]
-outline_mm = [[-90, -80], [90, -80], [90, 80], [-90, 80]]
-holes_mm = [[[-10, -10], [10, -10], [10, 10], [-10, 10]]]
-edge_clearance_mm = 3.0
-[budget]
-fill = 0.5
-[scan]
-max_deg = 20.0
-[constraints]
+    text = (
+        (
+            'name = "review-panel"\ndescription = "an invented panel for the review test"\n'
+            + TRI_PANEL
+        )
+        + """[constraints]
 symmetry = "mirror-x"
 pin_ids = [1, 2]
 [requirements]
 psl_db = -30.0
 """
+    )
     path = tmp_path / "panel.toml"
     path.write_text(text)
     spec = load_spec(path)

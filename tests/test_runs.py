@@ -14,11 +14,10 @@ import tomllib
 
 import numpy as np
 import pytest
-from helpers import small_spec
+from helpers import run_cli, small_spec, write_spec
 
 import thinning.analysis.design as design_mod
 from thinning.analysis.requirements import judge
-from thinning.cli import main
 from thinning.errors import OutputError, SpecError
 from thinning.io import fileset
 from thinning.search import COMPILE_NOTE, run_method
@@ -28,19 +27,26 @@ SMALL = small_spec(evaluations=300, extra="[requirements]\npsl_db = -10.0\nasl_d
 
 
 def write(tmp_path, text=SMALL, name="spec.toml"):
-    p = tmp_path / name
-    p.write_text(text)
-    return p
+    return write_spec(tmp_path, text, name)
 
 
-def run(capsys, *args):
-    code = main([str(a) for a in args])
-    out = capsys.readouterr()
-    return code, out.out, out.err
+run = run_cli
 
 
 def snapshot(folder):
     return {p.name: p.read_bytes() for p in sorted(folder.iterdir())}
+
+
+@pytest.fixture(scope="module")
+def designed(tmp_path_factory):
+    """One design of the small panel through the command: (folder, its summary line)."""
+    from thinning.cli import main
+
+    d = tmp_path_factory.mktemp("designed")
+    spec = write(d)
+    code = main(["design", str(spec), "--out", str(d / "out"), "--quiet"])
+    assert code == 0
+    return d / "out"
 
 
 # -- 1. the output folder is checked before the search ----------------------------------------
@@ -85,12 +91,10 @@ def test_read_only_folder_is_found_before_the_search(tmp_path, capsys, monkeypat
 
 
 # -- 2. all or nothing, and the digests --------------------------------------------------------
-def test_files_lists_the_sha256_of_every_other_file(tmp_path, capsys):
+def test_files_lists_the_sha256_of_every_other_file(designed):
     """layout.json's ``files``: every other file of the folder, by name, with its SHA-256
     (FIPS 180-4 as hashlib computes it), and nothing else; no staging folder is left."""
-    out = tmp_path / "out"
-    code, _, err = run(capsys, "design", write(tmp_path), "--out", out, "--quiet")
-    assert code == 0, err
+    out = designed
     meta = json.loads((out / "layout.json").read_text())
     others = {p.name for p in out.iterdir()} - {"layout.json"}
     assert set(meta["files"]) == others >= {"layout.csv", "report.html", "layout.dxf"}
@@ -98,11 +102,15 @@ def test_files_lists_the_sha256_of_every_other_file(tmp_path, capsys):
         assert hashlib.sha256((out / name).read_bytes()).hexdigest() == digest
 
 
-def test_an_interrupted_write_leaves_the_previous_set_untouched(tmp_path, capsys, monkeypatch):
+def test_an_interrupted_write_leaves_the_previous_set_untouched(
+    designed, tmp_path, capsys, monkeypatch
+):
     """Ctrl-C while the report is written (after layout.csv and the drawings of the new run):
     exit 130, and the folder holds exactly the previous run's files, byte for byte."""
+    import shutil
+
     out = tmp_path / "out"
-    assert run(capsys, "design", write(tmp_path), "--out", out, "--quiet")[0] == 0
+    shutil.copytree(designed, out)
     before = snapshot(out)
     import thinning.outputs.deliver as deliver
 
@@ -146,33 +154,34 @@ def test_probe_refuses_a_file_in_place_of_the_folder(tmp_path):
 
 
 # -- 3, 4. reproducibility and interruption ----------------------------------------------------
-def test_deterministic_and_the_summary_line(tmp_path, capsys):
+def test_deterministic_and_the_summary_line(designed, tmp_path):
     """Ended by the evaluation budget: deterministic, and the summary says reproducible;
     ended by the time limit: not deterministic, and the summary says the result depends on
     machine speed (the rule of the README)."""
-    out = tmp_path / "a"
-    code, stdout, err = run(capsys, "design", write(tmp_path), "--out", out, "--quiet")
-    assert code == 0, err
-    assert json.loads((out / "layout.json").read_text())["deterministic"] is True
-    assert "reproducible" in stdout.splitlines()[0]
+    from thinning.analysis.design import run_design
+    from thinning.cli.design import summary_line
+
+    meta = json.loads((designed / "layout.json").read_text())
+    assert meta["stopped_by"] == "evaluations" and meta["deterministic"] is True
+    spec = load_spec(write(tmp_path))
+    assert "reproducible" in summary_line(run_design(spec, tmp_path / "a"))
     slow = SMALL.replace("evaluations = 300", "evaluations = 100000000\ntime_limit_s = 0.5")
-    out = tmp_path / "b"
-    code, stdout, err = run(capsys, "design", write(tmp_path, slow, "t.toml"), "--out", out)
-    assert code == 0, err
-    meta = json.loads((out / "layout.json").read_text())
+    result = run_design(load_spec(write(tmp_path, slow, "t.toml")), tmp_path / "b")
+    meta = json.loads((tmp_path / "b" / "layout.json").read_text())
     assert meta["stopped_by"] == "time" and meta["deterministic"] is False
-    assert "depends on machine speed" in stdout.splitlines()[0]
+    assert "depends on machine speed" in summary_line(result)
 
 
 # -- 5. requirement verdicts -------------------------------------------------------------------
-def test_requirement_verdicts_everywhere(tmp_path, capsys):
+def test_requirement_verdicts_everywhere(designed, tmp_path):
     """margin = required − achieved for an upper limit (positive: met with room); the summary
     line says meets / fails by how much; layout.json and the report carry the same verdicts.
     The ASL requirement (−60 dB) cannot be met by 40 elements (their random floor is near
     −16 dB, references.md row 5), so it fails."""
-    out = tmp_path / "out"
-    code, stdout, err = run(capsys, "design", write(tmp_path), "--out", out, "--quiet")
-    assert code == 0, err
+    from thinning.analysis.design import run_design
+    from thinning.cli.design import summary_line
+
+    out = designed
     meta = json.loads((out / "layout.json").read_text())
     r = meta["requirements"]
     assert set(r) == {"psl_db", "asl_db"}
@@ -182,7 +191,7 @@ def test_requirement_verdicts_everywhere(tmp_path, capsys):
         assert v["margin_db"] == pytest.approx(need - meta[key], abs=1e-6)
         assert v["met"] is (meta[key] <= need)
     assert r["asl_db"]["met"] is False
-    line = stdout.splitlines()[0]
+    line = summary_line(run_design(load_spec(write(tmp_path)), tmp_path / "again"))
     assert f"fails ASL <= -60 dB by {abs(r['asl_db']['margin_db']):.2f} dB" in line
     word = "meets" if r["psl_db"]["met"] else "fails"
     assert f"{word} PSL <= -10 dB by {abs(r['psl_db']['margin_db']):.2f} dB" in line

@@ -641,6 +641,7 @@ _PROVENANCE_KEYS = (
     ("stopped_by", "ended by"),
     ("deterministic", "reproducible (deterministic)"),
     ("date", "date"),
+    ("layout_file", "layout file"),
 )
 
 

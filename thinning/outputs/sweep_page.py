@@ -33,31 +33,20 @@ def sweep_figure(res: SweepResult):
     a, b = fig.subplots(1, 2)
     a.plot(n, [r["psl_db"] for r in res.rows], "o-", color="C3", label="PSL, this search")
     a.plot(n, [r["asl_db"] for r in res.rows], "s-", color="C0", label="ASL, this search")
-    a.plot(
-        th["elements"],
-        th["random_median_psl_db"],
-        "--",
-        color="C3",
-        alpha=0.8,
-        label="median PSL of random thinning (filled-aperture sidelobes + random part)",
+    theory = (
+        (
+            "random_median_psl_db",
+            "--",
+            "C3",
+            0.8,
+            1.5,
+            "median PSL of random thinning (filled-aperture sidelobes + random part)",
+        ),
+        ("steinberg_median_psl_db", ":", "C3", 0.6, 1.0, "its random part alone (Steinberg)"),
+        ("expected_asl_db", "--", "C0", 0.7, 1.5, "expected ASL of random thinning"),
     )
-    a.plot(
-        th["elements"],
-        th["steinberg_median_psl_db"],
-        ":",
-        color="C3",
-        alpha=0.6,
-        lw=1.0,
-        label="its random part alone (Steinberg)",
-    )
-    a.plot(
-        th["elements"],
-        th["expected_asl_db"],
-        "--",
-        color="C0",
-        alpha=0.7,
-        label="expected ASL of random thinning",
-    )
+    for key, ls, colour, alpha, lw, label in theory:
+        a.plot(th["elements"], th[key], ls, color=colour, alpha=alpha, lw=lw, label=label)
     a.axhline(
         res.filled["psl_db"],
         color="0.4",
