@@ -48,6 +48,10 @@ SPEED_DEPENDENT_STOPS = frozenset({"time", "interrupt"})
 
 #: What the progress says while the first call of an evaluation kind compiles the kernels.
 COMPILE_NOTE = "compiling the search kernels, once after install (about 10-20 s)"
+_COMPILE_NOTES = {
+    "evaluate": COMPILE_NOTE,
+    "swaps": "compiling the swap-move kernels, once after install (about 5 s)",
+}
 
 #: A first evaluation call still running after this long is compiling  [s].
 _COMPILE_NOTE_AFTER_S = 1.5
@@ -244,7 +248,7 @@ class Tracker:
         self._first_calls.add(kind)
         timer = None
         if self.progress is not None:
-            timer = threading.Timer(_COMPILE_NOTE_AFTER_S, self._compile_note)
+            timer = threading.Timer(_COMPILE_NOTE_AFTER_S, self._compile_note, (kind,))
             timer.daemon = True
             timer.start()
         t = time.perf_counter()
@@ -255,9 +259,9 @@ class Tracker:
                 timer.cancel()
             self._setup_s += time.perf_counter() - t
 
-    def _compile_note(self):
+    def _compile_note(self, kind):
         try:
-            self.progress({**self._progress_figures(), "note": COMPILE_NOTE})
+            self.progress({**self._progress_figures(), "note": _COMPILE_NOTES[kind]})
         except Exception:  # a progress printer must never break the search  # noqa: BLE001
             pass
 
