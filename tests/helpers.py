@@ -37,3 +37,37 @@ def tri_sites():
     """Equilateral triangular lattice in a slightly skewed outline (some sites lack partners)."""
     ap = Aperture.from_mm([[-70, -50], [72, -50], [70, 40], [-70, 52]])
     return Lattice.from_mm("triangular", [17.32, 15.0]).sites_in(ap)
+
+
+#: A 180 × 160 mm panel with a square cut-out on a 17 mm equilateral triangular lattice at
+#: 10 GHz, half its sites on, scan to 20° (invented; [search] and the rest follow it).
+TRI_PANEL = """
+[array]
+frequency_ghz = 10.0
+lattice = "triangular"
+spacing_mm = 17.0
+[aperture]
+outline_mm = [[-90, -80], [90, -80], [90, 80], [-90, 80]]
+holes_mm = [[[-10, -10], [10, -10], [10, 10], [-10, 10]]]
+edge_clearance_mm = 3.0
+[budget]
+fill = 0.5
+[scan]
+max_deg = 20.0
+"""
+
+
+def write_spec(tmp_path, text, name="spec.toml"):
+    """Write a spec file into the test's folder; returns its path."""
+    p = tmp_path / name
+    p.write_text(text)
+    return p
+
+
+def run_cli(capsys, *args):
+    """Run the command line; (exit status, stdout, stderr)."""
+    from thinning.cli import main
+
+    code = main([str(a) for a in args])
+    out = capsys.readouterr()
+    return code, out.out, out.err

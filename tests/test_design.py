@@ -11,9 +11,8 @@ import time
 
 import numpy as np
 import pytest
-from helpers import small_spec
+from helpers import run_cli, small_spec, write_spec
 
-from thinning.cli import main
 from thinning.errors import GeometryError, SpecError
 from thinning.io.layout_csv import read_layout_csv
 from thinning.search import run_method
@@ -22,16 +21,8 @@ from thinning.spec import load_spec, parse_spec
 SMALL = small_spec(evaluations=600)
 
 
-def write(tmp_path, text, name="spec.toml"):
-    p = tmp_path / name
-    p.write_text(text)
-    return p
-
-
-def run(capsys, *args):
-    code = main([str(a) for a in args])
-    out = capsys.readouterr()
-    return code, out.out, out.err
+write = write_spec
+run = run_cli
 
 
 # -- validation ------------------------------------------------------------------------------
@@ -195,7 +186,9 @@ def test_interrupt_keeps_the_best(tmp_path):
 
 
 def test_ctrl_c_on_the_command_writes_the_best_so_far(tmp_path):
-    """SIGINT to a running ``thinning design``: exit 0 and complete files."""
+    """SIGINT to a running ``thinning design``: the best layout so far in complete files,
+    exit status 130 and "interrupted" in the summary line, so that scripts can tell
+    (common practice: 128 + SIGINT); layout.json says the run is not deterministic."""
     spec = write(tmp_path, SMALL.replace("evaluations = 600", "evaluations = 100000000"))
     out = tmp_path / "run"
     proc = subprocess.Popen(
@@ -216,12 +209,12 @@ def test_ctrl_c_on_the_command_writes_the_best_so_far(tmp_path):
     proc.send_signal(signal.SIGINT)
     stdout, stderr = proc.communicate(timeout=120)
     stderr = "".join(lines) + stderr
-    assert proc.returncode == 0, stderr
-    assert "interrupt" in stdout
+    assert proc.returncode == 130, stderr
+    assert "interrupted" in stdout.splitlines()[0]
     assert len(read_layout_csv(out / "layout.csv")) == 40
     meta = json.loads((out / "layout.json").read_text())
-    assert meta["stopped_by"] == "interrupt"
-    assert not [f for f in os.listdir(out) if f.endswith(".tmp")]
+    assert meta["stopped_by"] == "interrupt" and meta["deterministic"] is False
+    assert not [f for f in os.listdir(out) if f.endswith(".tmp") or f.startswith(".thinning")]
 
 
 def test_robust_design_optimises_the_percentile_psl(tmp_path):

@@ -120,6 +120,47 @@ def test_dxf_reads_back(tmp_path, aperture, layout):
     assert _no_temp_files(tmp_path)
 
 
+@pytest.mark.parametrize("with_aperture", [True, False])
+def test_dxf_opens_zoomed_to_the_drawing(tmp_path, aperture, layout, with_aperture):
+    """Header extents and the active viewport, read back with ezdxf (reference reader):
+    $EXTMIN/$EXTMAX enclose the outline and every element circle, and the geometry's own
+    extents as ezdxf.bbox computes them (text within 5 % of the span, whose width no two
+    programs measure alike); they are no wider than that plus 5 %; the *Active viewport is
+    centred on them and tall enough for them at its aspect ratio."""
+    import ezdxf
+    from ezdxf import bbox
+
+    path = write_layout_dxf(
+        tmp_path / "a.dxf",
+        layout,
+        aperture if with_aperture else None,
+        footprint_mm=8.0,
+        title="panel A, 10 GHz",
+    )
+    doc = ezdxf.readfile(path)
+
+    def xy(v):
+        return np.array([v[0], v[1]], dtype=float)
+
+    lo, hi = xy(doc.header["$EXTMIN"]), xy(doc.header["$EXTMAX"])
+    msp = doc.modelspace()
+    geometry = bbox.extents(msp.query("CIRCLE LWPOLYLINE"))
+    assert np.all(lo <= xy(geometry.extmin) + 1e-9)
+    assert np.all(hi >= xy(geometry.extmax) - 1e-9)
+    if with_aperture:
+        xmin, ymin, xmax, ymax = (b * 1e3 for b in aperture.bounds)
+        assert lo[0] <= xmin and lo[1] <= ymin and hi[0] >= xmax and hi[1] >= ymax
+    everything = bbox.extents(msp)
+    span = float(max(xy(everything.extmax) - xy(everything.extmin)))
+    assert np.all(hi >= xy(everything.extmax) - 0.05 * span)
+    assert np.all(hi <= xy(everything.extmax) + 0.05 * span)
+    assert np.all(lo >= xy(everything.extmin) - 0.05 * span)
+    vp = doc.viewports.get("*Active")[0]
+    assert np.allclose([vp.dxf.center[0], vp.dxf.center[1]], (lo + hi) / 2)
+    assert vp.dxf.height >= hi[1] - lo[1]
+    assert vp.dxf.height * vp.dxf.aspect_ratio >= hi[0] - lo[0]
+
+
 def test_dxf_default_footprint_and_no_labels(tmp_path, aperture, layout):
     path = tmp_path / "l.dxf"
     write_layout_dxf(path, layout, aperture, labels=False)

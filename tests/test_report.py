@@ -12,6 +12,7 @@ import re
 
 import numpy as np
 import pytest
+from helpers import TRI_PANEL
 
 from thinning.analysis.score import layout_engine, score_layout
 from thinning.errors import OutputError
@@ -77,9 +78,11 @@ def report_html(tmp_path_factory, rect):
 
 
 # -- the HTML file ----------------------------------------------------------------------------
-def test_report_has_every_section(report_html):
+def test_report_has_every_section_with_data(report_html):
+    """Every section with data; none for what was not given (no built-array analysis, no
+    spec): left out rather than shown empty."""
     for sid, _ in SECTIONS:
-        assert f'<h2 id="{sid}">' in report_html
+        assert (f'<h2 id="{sid}">' in report_html) is (sid not in ("stress", "spec"))
     for sid in (
         "summary",
         "layout",
@@ -108,7 +111,7 @@ def test_every_image_decodes(report_html):
     import matplotlib.image
 
     srcs = re.findall(r'<img src="([^"]+)"', report_html)
-    assert len(srcs) == 6  # layout, u-v map, cuts, scan, convergence, comparison
+    assert len(srcs) == 5  # u-v map, cuts, scan, convergence, comparison (layout: SVG)
     for src in srcs:
         assert src.startswith("data:image/png;base64,")
         data = base64.b64decode(src.split(",", 1)[1], validate=True)
@@ -129,13 +132,18 @@ def test_summary_psl_is_the_scored_psl(report_html, rect):
         assert float(got.group(1)) == expected[key]
 
 
-def test_comparison_not_run_without_baseline(tmp_path, rect):
+def test_sections_without_data_are_left_out(tmp_path, rect):
+    """A report on a layout file (no search, no baseline, no error model, no spec) has no
+    empty convergence, comparison, built-array or appendix sections, and no navigation
+    links to them."""
     path = build_report(
         tmp_path / "r.html", metrics={"psl_db": -12.0, "elements": 3}, figures={}, provenance={}
     )
     text = path.read_text(encoding="utf-8")
-    assert "not run" in text
-    assert all(f'<h2 id="{sid}">' in text for sid, _ in SECTIONS)
+    for sid in ("convergence", "comparison", "stress", "spec"):
+        assert f'id="{sid}"' not in text and f'href="#{sid}"' not in text
+    for sid in ("summary", "layout", "cautions", "provenance"):
+        assert f'<h2 id="{sid}">' in text
 
 
 def test_missing_folder_raises_and_leaves_nothing(tmp_path, rect):
@@ -263,3 +271,174 @@ def test_scan_psl_sees_the_grating_lobe_enter():
     assert np.all(phi0[:4] < -12.0)  # 0 … 15°
     assert phi0[5] > -1.0  # 25°
     assert phi0[6] > -1.0  # 30°: the grating lobe is in
+
+
+# -- the report as a design review reads it ----------------------------------------------------
+def test_psl_location_and_its_repeats():
+    """The lattice repeats the pattern every reciprocal vector b = λ·(A⁻¹)ᵀ (references.md
+    row 10; math). Square λ/2 lattice (λ = 2 mm, d = 1 mm): b = (2, 0), (0, 2).
+    (1.5, 0) repeats at (−0.5, 0): visible at broadside. (1.2, 1.2) has its nearest repeat
+    at (−0.8, −0.8), |·| = 1.131 > 1: seen only by beams steered at least
+    asin(0.131) = 7.55° toward φ = 45° (the steered beam sees q at q + (u₀, v₀))."""
+    from thinning.outputs.report_sections import psl_location
+
+    basis = [[1.0, 0.0], [0.0, 1.0]]
+    a = psl_location([1.5, 0.0], basis, 2.0, 45.0)
+    assert a["broadside"] and np.allclose(a["nearest"], [-0.5, 0.0])
+    assert "broadside beam has it too" in a["text"]
+    b = psl_location([1.2, 1.2], basis, 2.0, 45.0)
+    assert not b["broadside"] and np.allclose(b["nearest"], [-0.8, -0.8])
+    assert b["min_scan_deg"] == pytest.approx(math.degrees(math.asin(math.hypot(0.8, 0.8) - 1)))
+    assert b["toward_phi_deg"] == pytest.approx(45.0)
+    c = psl_location([0.3, 0.4], basis, 2.0, 45.0)
+    assert c["broadside"] and "θ = 30.0°" in c["text"]  # asin(0.5)
+
+
+def test_scan_section_with_equal_values_is_one_line(tmp_path, rect):
+    """Every beam with the same worst sampled lobe: one statement and a one-row table, and
+    the note on sampled against refined figures names the difference."""
+    table = {
+        "theta_deg": np.linspace(0, 20, 5),
+        "phi_deg": np.array([0.0, 45.0, 90.0]),
+        "psl_db": np.full((5, 3), -22.94),
+        "psl_uv": np.zeros((5, 3, 2)),
+        "worst_db": np.full(5, -22.94),
+    }
+    path = build_report(tmp_path / "r.html", metrics={"psl_db": -22.91}, scan_table=table)
+    scan = path.read_text().split('id="scan"')[1].split("</section>")[0]
+    assert scan.count("<tr>") == 2 and "the same worst sampled sidelobe" in scan
+    assert "0.03 dB" in scan and "refined on the exact continuous pattern" in scan
+    table["psl_db"][2, 1] = -21.0
+    path = build_report(tmp_path / "r.html", metrics={"psl_db": -20.9}, scan_table=table)
+    scan = path.read_text().split('id="scan"')[1].split("</section>")[0]
+    assert scan.count("<tr>") == 6
+
+
+def test_cuts_mark_the_steering_range_not_an_observation_band(rect):
+    """No shaded band of observation angles (matplotlib's axvspan is a Polygon or Rectangle
+    patch); the steering range is an annotation, labelled as such."""
+    layout, _ = rect
+    fig = figures.fig_principal_cuts(layout, LAM, math.radians(30))
+    for ax in fig.axes:
+        assert not [p for p in ax.patches if "scan" in str(p.get_label())]
+        texts = [t.get_text() for t in ax.texts]
+        assert any("steering range ±30°" in t for t in texts)
+        assert "observation angle" in ax.get_xlabel()
+
+
+def _stress(model):
+    return {
+        "scan": [
+            {
+                "theta_deg": 30.0,
+                "phi_deg": 0.0,
+                "psl_db": -20.0,
+                "gain_dbi": 28.5,
+                "scan_loss_db": -0.62,
+                "hpbw_deg": 5.7,
+                "hpbw_broadening": 1.15,
+                "cos_law": 1.1547,
+            }
+        ],
+        "band": [
+            {
+                "frequency_ghz": 9.400000001,
+                "steering": "phase",
+                "theta_command_deg": 30.0,
+                "theta_beam_deg": 30.0,
+                "squint_deg": 0.0,
+                "psl_db": -20.0,
+                "grating_lobe": False,
+            }
+        ],
+        "monte_carlo": {"trials": 1, "model": model},
+        "psl_db": {"nominal": -20.0, "median": -20.0, "p90": -20.0},
+        "asl_db": {"nominal": -30.0, "mean": -30.0},
+        "expected_asl_db": -30.0,
+    }
+
+
+def test_built_array_section_reads_as_a_review(tmp_path):
+    """No Monte Carlo without an error; the scan loss is a positive loss; frequencies at a
+    sensible precision; the error floor's formula rendered, citing the publications rather
+    than a file the reader does not have."""
+    none = {"amplitude_error_db": 0.0, "phase_error_deg": 0.0, "phase_bits": None, "failures": 0}
+    text = build_report(
+        tmp_path / "r.html", metrics={"psl_db": -20.0}, stress=_stress(none)
+    ).read_text()
+    stress = text.split('id="stress"')[1].split("</section>")[0]
+    assert "Random errors" not in stress
+    assert ">0.62<" in stress and "−0.62" not in stress
+    assert ">9.4<" in stress and "9.4000" not in stress
+    some = dict(none, phase_error_deg=5.0, phase_bits=4)
+    text = build_report(
+        tmp_path / "r.html", metrics={"psl_db": -20.0}, stress=_stress(some)
+    ).read_text()
+    assert "Random errors" in text and "2<sup>2B</sup>" in text and "Mailloux" in text
+    for raw in ("^{", "cos^", "references.md"):
+        assert raw not in text
+
+
+def test_summary_names_the_spec_constraints_and_appendix(tmp_path):
+    """With its spec the report opens with the name and description, the requirement
+    verdicts, the constraints, the cell-gain rule named for the lattice in use, and ends with
+    the spec's text."""
+    from thinning.analysis.requirements import judge
+    from thinning.spec import load_spec
+
+    text = (
+        (
+            'name = "review-panel"\ndescription = "an invented panel for the review test"\n'
+            + TRI_PANEL
+        )
+        + """[constraints]
+symmetry = "mirror-x"
+pin_ids = [1, 2]
+[requirements]
+psl_db = -30.0
+"""
+    )
+    path = tmp_path / "panel.toml"
+    path.write_text(text)
+    spec = load_spec(path)
+    sites = spec.sites()
+    mask = np.zeros(len(sites), bool)
+    mask[: len(sites) // 2] = True
+    layout = Layout.from_sites(sites, mask)
+    xy = np.column_stack([sites.x, sites.y])
+    metrics = score_layout(layout, FREQ, math.radians(20), 1.0, sites=xy).to_dict()
+    html = report_for_layout(
+        tmp_path / "r.html",
+        layout,
+        FREQ,
+        math.radians(20),
+        1.0,
+        aperture=spec.aperture,
+        sites=xy,
+        metrics=metrics,
+        spec=spec,
+        requirements=judge(spec.requirements, metrics),
+    ).read_text()
+    summary = html.split('id="layout"')[0]
+    assert "review-panel" in summary and "an invented panel for the review test" in summary
+    assert "PSL ≤ −30 dB" in summary and "NOT MET" in summary
+    assert "mirror-x" in summary and "ids 1, 2" in summary and "3 mm" in summary
+    assert "Cell-gain rule, triangular lattice" in summary and "λ/2 square" not in summary
+    assert "Frequency" in summary and ">10 GHz<" in summary
+    appendix = html.split('id="spec"')[1]
+    assert "edge_clearance_mm = 3.0" in appendix and spec.digest in appendix
+
+
+def test_layout_drawing_is_inline_svg_with_ids_and_dimensions(tmp_path, rect):
+    """Vector drawing: one circle per element carrying its id as a tooltip, the ids as text
+    (hidden until asked for), the zoom and id controls, and the overall dimensions in mm
+    measured from the elements (no outline given): the element span, centre to centre."""
+    layout, sites = rect
+    html = report_for_layout(tmp_path / "r.html", layout, FREQ, 0.3, sites=sites).read_text()
+    svg = html[html.index("<svg") : html.index("</svg>")]
+    assert svg.count("<circle") == len(layout) + len(sites)  # elements and empty sites
+    ids = re.findall(r"<title>(\d+): x", svg)
+    assert ids == [str(i) for i in range(1, len(layout) + 1)]
+    assert 'class="ids"' in svg and 'id="dwg-ids"' in html and 'id="dwg-z4"' in html
+    width = (layout.x.max() - layout.x.min()) * 1e3
+    assert f"{width:.1f} mm (element centres)" in svg

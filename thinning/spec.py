@@ -110,6 +110,7 @@ class Spec:
     source : str   file name for messages
     raw : dict     the TOML as read (for provenance)
     digest : str   SHA-256 of the file's bytes
+    text : str     the file's text (for the report's appendix)
     frequency : float  [Hz]
     lattice : Lattice
     aperture : Aperture or None (linear arrays)
@@ -153,6 +154,7 @@ class Spec:
     robust_trials: int = 16
     robust_percentile: float = 90.0
     robust_seed: int = 0
+    text: str = ""
 
     @property
     def wavelength(self) -> float:
@@ -180,6 +182,29 @@ class Spec:
             raise SpecError(
                 f"{where(src, 'budget.elements')}{n}: more than the {m} sites the aperture holds"
             )
+        pinned, forbidden = self.constraint_masks(sites)
+        return ThinningProblem(
+            sites,
+            n,
+            self.wavelength,
+            self.scan_max,
+            pinned=pinned,
+            forbidden=forbidden,
+            symmetry=self.symmetry,
+            objective=self.objective,
+            secondary_weight=self.secondary_weight,
+            oversampling=self.oversampling,
+            source=src,
+            robust=self.robust,
+            robust_trials=self.robust_trials,
+            robust_percentile=self.robust_percentile,
+            robust_seed=self.robust_seed,
+        )
+
+    def constraint_masks(self, sites: Sites) -> tuple[np.ndarray, np.ndarray]:
+        """(pinned, forbidden): which sites the [constraints] keep on and keep off."""
+        m = len(sites)
+        src = self.source
         pinned = np.zeros(m, bool)
         forbidden = np.zeros(m, bool)
         if self.pin_outer_ring:
@@ -212,23 +237,7 @@ class Spec:
                 f"{where(src, 'constraints')}site {int(np.flatnonzero(both)[0]) + 1} "
                 "is both pinned and forbidden"
             )
-        return ThinningProblem(
-            sites,
-            n,
-            self.wavelength,
-            self.scan_max,
-            pinned=pinned,
-            forbidden=forbidden,
-            symmetry=self.symmetry,
-            objective=self.objective,
-            secondary_weight=self.secondary_weight,
-            oversampling=self.oversampling,
-            source=src,
-            robust=self.robust,
-            robust_trials=self.robust_trials,
-            robust_percentile=self.robust_percentile,
-            robust_seed=self.robust_seed,
-        )
+        return pinned, forbidden
 
 
 def load_spec(path) -> Spec:
@@ -251,7 +260,9 @@ def load_spec(path) -> Spec:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SpecError(f"{name}: not valid TOML: {exc}") from None
-    return parse_spec(raw, name, hashlib.sha256(data).hexdigest())
+    spec = parse_spec(raw, name, hashlib.sha256(data).hexdigest())
+    spec.text = text
+    return spec
 
 
 def _get(raw, table, key, src, default=None, required=False):
@@ -291,6 +302,44 @@ def _points(value, src, key):
     return [(_number(x, src, key), _number(y, src, key)) for x, y in value]
 
 
+_POINTS = ("Point", "MultiPoint")  # a hole may touch the outline at single points
+
+
+def _check_holes_inside(outline, holes, src) -> None:
+    """A hole must lie inside the outline: one that crosses it (a notch cut from the edge) or
+    lies outside it is named as such, with a point where it does (shapely's own reason for the
+    combined polygon, "self-intersection", does not say which ring is at fault)."""
+    import shapely
+    from shapely.geometry import LinearRing, Polygon
+
+    try:
+        shell = Polygon(np.asarray(outline, dtype=float))
+        rings = [np.asarray(h, dtype=float) for h in holes]
+    except (TypeError, ValueError):
+        return  # the aperture's own checks name the malformed value
+    if not shell.is_valid or any(r.ndim != 2 or r.shape[1:] != (2,) or len(r) < 3 for r in rings):
+        return
+    for i, ring in enumerate(rings):
+        hole = Polygon(ring)
+        if not hole.is_valid:
+            continue
+        key = f"aperture.holes_mm[{i}]"
+        meet = shell.boundary.intersection(LinearRing(ring))
+        if not meet.is_empty and (not shell.contains(hole) or meet.geom_type not in _POINTS):
+            at = shapely.get_coordinates(meet)[0]
+            word = "touches" if shell.contains(hole) else "crosses"
+            raise SpecError(
+                f"{where(src, key)}the hole {word} the outline at ({at[0]:g}, {at[1]:g}) mm; "
+                "a cut-out that reaches the edge is part of the outline (draw it into "
+                "aperture.outline_mm)"
+            )
+        if not shell.intersects(hole):
+            x, y = ring[0]
+            raise SpecError(
+                f"{where(src, key)}the hole lies outside the outline (its point ({x:g}, {y:g}) mm)"
+            )
+
+
 def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
     """Validate a parsed TOML document."""
     src = source
@@ -327,6 +376,8 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
     spacing = _get(raw, "array", "spacing_mm", src, required=True)
     if kind == "triangular" and isinstance(spacing, int | float) and not isinstance(spacing, bool):
         spacing = [spacing, spacing * math.sqrt(3) / 2]  # equilateral
+    if kind == "rectangular" and isinstance(spacing, int | float) and not isinstance(spacing, bool):
+        spacing = [spacing, spacing]  # square
     if kind == "linear" and isinstance(spacing, list) and len(spacing) == 1:
         spacing = spacing[0]
     origin = _get(raw, "array", "origin_mm", src, default=[0.0, 0.0])
@@ -350,6 +401,7 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         outline = _get(raw, "aperture", "outline_mm", src, required=True)
         holes = _get(raw, "aperture", "holes_mm", src, default=[])
         clearance = _get(raw, "aperture", "edge_clearance_mm", src, default=0.0)
+        _check_holes_inside(outline, holes, src)
         aperture = Aperture.from_mm(outline, holes, clearance, src)
 
     elements = _get(raw, "budget", "elements", src)
@@ -380,6 +432,11 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         "search.effort",
     )
     evals = _get(raw, "search", "evaluations", src)
+    if evals is not None and "effort" in raw.get("search", {}):
+        raise SpecError(
+            f"{where(src, 'search.evaluations')}given together with search.effort: give one "
+            "(effort is a named evaluation budget)"
+        )
     max_evals = (
         EFFORT_EVALUATIONS[effort]
         if evals is None

@@ -1,8 +1,12 @@
 """Run a design from a spec and write its results.
 
-``run_design`` validates everything before it touches the output folder, runs the search
-(which keeps its best layout through a time limit or Ctrl-C), scores the best layout in full,
-and writes ``layout.csv`` and ``layout.json`` atomically: a file is either complete or absent.
+``run_design`` validates everything and checks that the output folder takes new files before
+the search starts, runs the search (which keeps its best layout through a time limit or
+Ctrl-C), scores the best layout in full, judges the spec's requirements, and writes the run's
+files (``layout.csv``, the drawings and report, ``layout.json`` last) as one set
+(:func:`thinning.io.fileset.file_set`): the folder holds either the new set or the previous
+one, never a mix. ``layout.json`` lists the SHA-256 of every other file of the set and says
+whether the run is ``deterministic`` (ended by a rule that does not depend on machine speed).
 """
 
 from __future__ import annotations
@@ -15,15 +19,27 @@ from pathlib import Path
 import numpy as np
 
 from .. import __version__
-from ..errors import OutputError, SpecError
+from ..errors import SpecError
 from ..geometry.layout import Layout
 from ..io.atomic import atomic_write_json
+from ..io.fileset import file_digests, file_set, probe_folder
 from ..io.layout_csv import write_layout_csv
 from ..search import SearchResult, run_method
 from ..spec import Spec
+from .requirements import judge
 from .score import score_layout
 
-__all__ = ["DesignResult", "run_design", "prepare_output", "layout_metadata"]
+__all__ = [
+    "DesignResult",
+    "run_design",
+    "prepare_output",
+    "layout_metadata",
+    "write_run_files",
+    "RECORD",
+]
+
+#: The record of a run's file set: its figures, provenance and the digests of the others.
+RECORD = "layout.json"
 
 
 @dataclass
@@ -38,15 +54,9 @@ class DesignResult:
 
 
 def prepare_output(out_dir) -> Path:
-    """Create the output folder (and parents); refuse a file in its place."""
-    out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise OutputError(f"{out}: exists and is not a folder")
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise OutputError(f"{out}: cannot create the output folder: {exc.strerror}") from None
-    return out
+    """Create the output folder (and parents) and check that it takes new files; refuse a
+    file in its place. Called before any search, so a bad folder costs no run."""
+    return probe_folder(out_dir)
 
 
 def layout_metadata(
@@ -61,6 +71,7 @@ def layout_metadata(
             "evaluations": int(search.evaluations),
             "runtime_s": round(float(search.runtime_s), 3),
             "stopped_by": search.stopped_by,
+            "deterministic": search.deterministic,
             "version": __version__,
             "spec_file": Path(spec.source).name,
             "spec_digest_sha256": spec.digest,
@@ -75,6 +86,7 @@ def layout_metadata(
                 "psl_db": search.psl_db,
                 "asl_db": search.asl_db,
             },
+            "requirements": judge(spec.requirements, metrics),
             "history": search.history,
             "notes": list(problem.notes) + list(spec.warnings),
             "caution": (
@@ -96,7 +108,7 @@ def score_spec_layout(spec: Spec, sites, mask, source=None):
         spec.frequency,
         spec.scan_max,
         spec.element_exponent,
-        sites=len(sites),
+        sites=sites,
         oversampling=spec.oversampling,
     ).to_dict()
     metrics["scoring_s"] = round(time.perf_counter() - t, 3)
@@ -165,7 +177,19 @@ def run_design(
     workers : int, optional   evaluation processes (default: the spec's ``search.workers``)
     progress : callable(dict), optional   progress reports from the search
     extra_outputs : callable(DesignResult, Path) -> list of Path, optional
-        Writes further files (drawings, report) after the layout files.
+        Writes further files (drawings, report) into the given staging folder, after
+        ``layout.csv`` and before ``layout.json``.
+
+    Raises
+    ------
+    SpecError, GeometryError
+        A problem of the spec, before any search.
+    OutputError
+        The folder cannot take new files (found before the search), or the files cannot be
+        written; the previous set of files stays as it was.
+    KeyboardInterrupt
+        Ctrl-C while the files are written (the previous set stays as it was). Ctrl-C during
+        the search ends it with its best layout (``stopped_by = "interrupt"``) instead.
     """
     if spec.method == "pareto":
         raise SpecError(
@@ -174,19 +198,31 @@ def run_design(
         )
     sites = spec.sites()
     problem = spec.problem(sites)  # every input problem is raised before any output exists
-    out = prepare_output(out_dir)
+    out = prepare_output(out_dir)  # and an unwritable folder before the search
     search, layout, meta = search_and_score(
         spec, sites, problem, workers or spec.workers, progress, str(out / "layout.csv")
     )
     if problem.robust is not None:
         meta["robust"] = robust_summary(spec, problem, layout)
-    files = [out / "layout.csv", out / "layout.json"]
-    write_layout_csv(files[0], layout)
-    atomic_write_json(files[1], meta)
-    result = DesignResult(spec, search, layout, meta, files, problem, sites)
-    if extra_outputs is not None:
-        files.extend(extra_outputs(result, out))
+    result = DesignResult(spec, search, layout, meta, [], problem, sites)
+    extra = None if extra_outputs is None else (lambda stage: extra_outputs(result, stage))
+    result.files = write_run_files(out, layout, meta, extra)
     return result
+
+
+def write_run_files(out: Path, layout: Layout, meta: dict, extra=None) -> list[Path]:
+    """Write one run's files into ``out`` as one set: ``layout.csv``, whatever ``extra``
+    writes (given the staging folder; returns the paths it wrote), then ``layout.json`` with
+    ``files``, the SHA-256 of every other file. Returns the paths in ``out``, csv and json
+    first."""
+    with file_set(out, RECORD) as stage:
+        write_layout_csv(stage / "layout.csv", layout)
+        names = ["layout.csv", RECORD]
+        if extra is not None:
+            names += [Path(f).name for f in extra(stage) or ()]
+        meta["files"] = file_digests(stage, exclude=(RECORD,))
+        atomic_write_json(stage / RECORD, meta)
+    return [out / n for n in names]
 
 
 def format_progress(method: str):
@@ -197,6 +233,11 @@ def format_progress(method: str):
     last = [-math.inf]
 
     def show(p):
+        if p.get("note"):  # e.g. the kernels compiling on the first run after an install
+            line = f"{method}: {p['note']}"
+            sys.stderr.write(("\r" + line.ljust(78)) if tty else line + "\n")
+            sys.stderr.flush()
+            return
         if not tty and p["seconds"] - last[0] < 5.0:  # a log file gets a line every 5 s
             return
         last[0] = p["seconds"]

@@ -18,11 +18,24 @@ import shapely
 
 from ..engine import metrics
 from ..engine.pattern import DirectPatternEngine, FFTPatternEngine
+from ..errors import LayoutError, where
 from ..geometry.lattice import generated_lattice, grating_lobe_positions
 from ..geometry.layout import Layout
 from ..units import to_db
 
-__all__ = ["ScoreResult", "score_layout", "layout_engine"]
+__all__ = ["ScoreResult", "score_layout", "layout_engine", "SITES_BASIS", "DIRECT_PROGRESS_WORK"]
+
+#: How the candidate-site count M of a score was found (the ``sites_basis`` key).
+SITES_BASIS = {
+    "sites": "the candidate sites given (the spec's panel)",
+    "count": "the count given (--sites)",
+    "hull": "the layout's own lattice inside the convex hull of its elements (assumed)",
+    "none": "unknown: the layout is on no lattice, so M is taken as unlimited (assumed)",
+}
+
+#: Work of a direct-summation stage (elements × pattern samples, or about ten per element
+#: pair for the directivity) from which a score reports the stage: about 5 s or more.
+DIRECT_PROGRESS_WORK = 2e8
 
 
 @dataclass
@@ -31,6 +44,7 @@ class ScoreResult:
 
     elements: int
     sites: int | None
+    sites_basis: str
     fill: float | None
     psl_db: float
     psl_uv: list
@@ -133,14 +147,33 @@ def _lattice_sites(fit, basis_idx) -> np.ndarray:
     return on & inside
 
 
+def _site_positions(sites):
+    """(M, 2) positions [m] of candidate sites given as a ``Sites`` or an array, else None."""
+    if sites is None or isinstance(sites, int | np.integer):
+        return None
+    if hasattr(sites, "x") and hasattr(sites, "y"):
+        return np.column_stack([np.asarray(sites.x), np.asarray(sites.y)])
+    return np.asarray(sites, dtype=float).reshape(-1, 2)
+
+
+def _filled_asl(xy, lam, scan_max, oversampling) -> float:
+    """ASL of every candidate site filled (uniform weights), sampled  [1, linear]."""
+    filled = Layout(xy[:, 0], xy[:, 1])
+    eng, grid, _, _ = layout_engine(filled, lam, scan_max, oversampling)
+    if grid is None:
+        return float(eng.detail().asl)
+    return float(eng.evaluate(grid, refine=False).asl[0])
+
+
 def score_layout(
     layout: Layout,
     frequency: float,
     scan_max: float = 0.0,
     q: float = 1.0,
-    sites: int | None = None,
+    sites=None,
     oversampling: float = 4.0,
     workers: int = -1,
+    progress=None,
 ) -> ScoreResult:
     """All figures of a layout.
 
@@ -150,21 +183,53 @@ def score_layout(
     frequency : float  [Hz]
     scan_max : float  [rad]   half-angle of the scan cone
     q : float  [1]   element-pattern exponent (cosᵠθ; 0 = isotropic over the full sphere)
-    sites : int, optional
-        Candidate sites M the layout was thinned from, for the random-thinning expectation;
-        by default the sites of the layout's own lattice inside the convex hull of its
-        elements (1/N, M → ∞, for a layout off any lattice). The expectation includes the
-        sidelobes of that filled aperture.
+    sites : Sites, (M, 2) array [m] or int, optional
+        The candidate sites the layout was thinned from, for the fill and the random-thinning
+        expectation (which includes the sidelobes of those sites all filled): their positions
+        (a spec's ``Sites``), or only their count M (the filled aperture is then the next
+        default's). By default the sites of the layout's own lattice inside the convex hull
+        of its elements (1/N, M → ∞, for a layout off any lattice). ``sites_basis`` in the
+        result says which (:data:`SITES_BASIS`).
     oversampling : float   FFT (or direct grid) samples per null width, per axis
     workers : int   threads for scipy.fft
+    progress : callable(str), optional
+        Told the stage of a long direct summation (off any grid, with elements × samples
+        above :data:`DIRECT_PROGRESS_WORK`) as it starts.
+
+    Raises
+    ------
+    LayoutError
+        Fewer than two elements, or fewer candidate sites than elements.
     """
     from ..units import wavelength as wl
 
     lam = wl(frequency)
     n = len(layout)
+    if n < 2:
+        raise LayoutError(
+            f"{where(layout.source, None)}one element only: a one-element array has no "
+            "sidelobes, beam or fill to score"
+        )
+    site_xy = _site_positions(sites)
+    if sites is not None and (len(site_xy) if site_xy is not None else int(sites)) < n:
+        count = len(site_xy) if site_xy is not None else int(sites)
+        raise LayoutError(
+            f"{where(layout.source, None)}{count} candidate sites for {n} elements: fewer "
+            "sites than elements"
+        )
     eng, grid, exact, fit = layout_engine(layout, lam, scan_max, oversampling, workers)
-    detail = eng.detail(grid) if grid is not None else eng.detail()
     g = eng.grid
+
+    def stage(text, work):
+        if progress is not None and grid is None and work >= DIRECT_PROGRESS_WORK:
+            progress(text)
+
+    samples = g.nr * g.nc
+    stage(
+        f"pattern by direct summation: {n:,} elements off any regular grid, {samples:,} samples",
+        n * samples,
+    )
+    detail = eng.detail(grid) if grid is not None else eng.detail()
 
     # directivity and the cell-gain rule
     lattice_info: dict
@@ -174,9 +239,10 @@ def score_layout(
         d = metrics.directivity_grid(grid, (gx, gy), lam, q)
         basis_idx = generated_lattice(fit.col, fit.row)
         basis = basis_idx * np.array([[gx], [gy]])
-        filled = _lattice_sites(fit, basis_idx)
-        m_lat = int(filled.sum())
-        filled_asl = float(eng.evaluate(filled.astype(np.float64), refine=False).asl[0])
+        if site_xy is None:
+            filled = _lattice_sites(fit, basis_idx)
+            m_lat = int(filled.sum())
+            filled_asl = float(eng.evaluate(filled.astype(np.float64), refine=False).asl[0])
         if fit.linear or not np.any(basis_idx[:, 1]) or not np.any(basis_idx[:, 0]):
             step = float(np.linalg.norm(basis[:, 0] if np.any(basis_idx[:, 0]) else basis[:, 1]))
             step = step or gx
@@ -198,6 +264,8 @@ def score_layout(
             }
         lattice_info["fit_residual_um"] = fit.residual * 1e6
     else:
+        # a pair costs about ten pattern terms (a Bessel function)
+        stage(f"directivity: pairwise sum over {n * (n - 1) // 2:,} element pairs", 10 * n * n)
         d = metrics.directivity_points(layout.x, layout.y, layout.weights, lam, q)
         m_lat = None
         filled_asl = 0.0
@@ -213,17 +281,25 @@ def score_layout(
             rule = metrics.cell_gain_rule(n, cell, lam)
             basis_note = "4π·N·A/λ² with A = convex-hull area / N (off-lattice)"
         lattice_info = {"kind": "off-lattice"}
-    m = sites if sites is not None else m_lat
+    if site_xy is not None:
+        m, basis_key = len(site_xy), "sites"
+        filled_asl = _filled_asl(site_xy, lam, scan_max, oversampling)
+    elif sites is not None:
+        m, basis_key = int(sites), "count"
+    else:
+        m, basis_key = m_lat, ("hull" if m_lat is not None else "none")
 
-    # beamwidths in the principal planes, at broadside and at the scan edge
+    # half-power beamwidths of the array factor (like PSL and ASL, without the element
+    # pattern) in the principal planes, at broadside and at the scan edge
     u_scan = math.sin(scan_max)
     step = 0.5 * g.du
     xp, xm = metrics.half_power_offsets(exact, (1.0, 0.0), step)
     bw = [metrics.beamwidth_deg(xp, xm)]
     bw_scan = [metrics.beamwidth_deg(xp, xm, u_scan)]
     if (fit is not None and fit.linear) or (fit is None and layout.is_linear):
-        bw.append(metrics.element_beamwidth_deg(q))
-        bw_scan.append(metrics.element_beamwidth_deg(q))
+        # the array factor of a line along x does not vary across it: no half-power width
+        bw.append(None)
+        bw_scan.append(None)
     else:
         yp, ym = metrics.half_power_offsets(exact, (0.0, 1.0), 0.5 * g.dv)
         bw.append(metrics.beamwidth_deg(yp, ym))
@@ -234,6 +310,7 @@ def score_layout(
     return ScoreResult(
         elements=n,
         sites=m,
+        sites_basis=basis_key,
         fill=(n / m) if m else None,
         psl_db=_clean(to_db(detail.psl)) if detail.psl > 0 else None,
         psl_uv=[_clean(detail.psl_uv[0]), _clean(detail.psl_uv[1])],

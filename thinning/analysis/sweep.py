@@ -6,19 +6,25 @@ per budget, with the theory beside them:
 
 * the expected ASL of random thinning (references.md row 5), exact for N of M sites and
   including the filled aperture's own sidelobes;
-* Steinberg's median peak sidelobe of a random array (references.md row 6; Steinberg, IEEE TAP
+* the median PSL of random thinning (:class:`RandomThinning`): the exact expectation of
+  row 5 split into its coherent part, the filled aperture's own pattern, and a random part,
+  whose peak over n_s independent samples follows Steinberg's form (row 6); near full fill it
+  tends to the filled aperture's PSL, at low fill to Steinberg's median of the random floor;
+* Steinberg's median peak of the random floor alone (references.md row 6; Steinberg, IEEE TAP
   20(2), 1972, form from memory): with n_s independent sidelobe samples, each exponentially
-  distributed about the mean level ASL, the peak's distribution is
-  :math:`P(\mathrm{peak} \le r) \approx (1 - e^{-r/\mathrm{ASL}})^{n_s}` and its median is
-  :math:`\mathrm{ASL}\cdot\ln(1/(1 - 2^{-1/n_s})) \approx \mathrm{ASL}\cdot\ln(n_s/\ln 2)`;
+  distributed about the mean level b, the peak's distribution is
+  :math:`P(\mathrm{peak} \le r) \approx (1 - e^{-r/b})^{n_s}` and its median is
+  :math:`b\cdot\ln(1/(1 - 2^{-1/n_s})) \approx b\cdot\ln(n_s/\ln 2)`;
   n_s is the area of the sidelobe region in u-v divided by the area of one beam
   ((λ/L)² per resolution cell, common practice);
 * the filled aperture's own PSL and ASL;
-* the cell-gain rule for the directivity.
+* the cell-gain rule for the directivity;
+* the verdict of the spec's requirements (:mod:`thinning.analysis.requirements`).
 
-A rerun into the same folder reuses every budget whose ``layout.json`` was made from the same
-spec (digest) with the same method and seed, so an interrupted sweep resumes where it stopped
-and a finished one gives the same ``sweep.csv``.
+Every budget's folder is written as one set of files (:func:`thinning.io.fileset.file_set`),
+and so are the sweep's own files. A rerun into the same folder reuses every budget whose
+``layout.json`` was made from the same spec (digest) with the same method and seed, so an
+interrupted sweep resumes where it stopped and a finished one gives the same ``sweep.csv``.
 """
 
 from __future__ import annotations
@@ -31,22 +37,27 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+from scipy.optimize import brentq
+from scipy.stats import ncx2
 
 from ..engine.metrics import expected_asl_random
 from ..errors import SpecError
 from ..geometry.layout import Layout
 from ..io.atomic import atomic_write, atomic_write_json
-from ..io.layout_csv import write_layout_csv
+from ..io.fileset import file_digests, file_set
 from ..spec import Spec, load_spec
 from ..units import to_db
 from .cluster import executor_for, spec_from_text
-from .design import prepare_output, score_spec_layout, search_and_score
+from .design import prepare_output, score_spec_layout, search_and_score, write_run_files
+from .requirements import all_met, describe, judge
+from .score import layout_engine
 
 __all__ = [
     "SWEEP_COLUMNS",
     "parse_budgets",
     "steinberg_median_peak",
     "independent_samples",
+    "RandomThinning",
     "run_sweep",
     "SweepResult",
 ]
@@ -58,6 +69,7 @@ SWEEP_COLUMNS = [
     "asl_db",
     "expected_asl_db",
     "method_expected_asl_db",
+    "random_median_psl_db",
     "steinberg_median_psl_db",
     "directivity_dbi",
     "pi_n_dbi",
@@ -95,6 +107,11 @@ def parse_budgets(elements: str | None, fill: str | None, sites: int) -> list[in
                 f"--elements {elements!r}: expected a list like 100,150,200 or "
                 "START:STOP:STEP like 100:300:50"
             ) from None
+        if ":" in text and start > stop:
+            raise SpecError(
+                f"--elements {elements!r}: the range from {start} to {stop} is empty "
+                "(START:STOP:STEP counts up, and STOP is included)"
+            )
     if fill:
         try:
             fills = [float(p) for p in fill.split(",") if p.strip()]
@@ -141,6 +158,114 @@ def steinberg_median_peak(asl: float, n_s: float) -> float:
     return asl * -math.log(1 - 2 ** (-1 / n_s))
 
 
+class RandomThinning:
+    r"""Median peak sidelobe of choosing N of M sites at random, filled sidelobes included.
+
+    With exactly N of M sites on, each is on with probability N/M, so the mean array factor is
+    (N/M)·F with F the filled aperture's: per direction the coherent part of |AF|²/N² is the
+    filled aperture's own normalised pattern P_f, and the rest is a zero-mean random sum of
+    mean power b·(1 − P_f), b = (M − N)/(N(M − 1)). Together they are the exact expectation of
+    references.md row 5,
+
+    .. math::  E|AF|^2/N^2 = P_f + b\,(1 - P_f) = rac{M(N-1)}{N(M-1)}P_f + b
+
+    (Lo 1964; Skolnik, Sherman & Ogg 1964). Taking the random part as complex Gaussian (many
+    independent terms), 2|AF/N|²/σ² at a direction is non-central χ² with 2 degrees of freedom
+    and non-centrality 2P_f/σ², σ² = b(1 − P_f). As in Steinberg's form (references.md row 6;
+    Steinberg, IEEE TAP 20(2), 1972, form from memory) the peak is taken over n_s independent
+    samples, here spread over the sidelobe region in proportion to its area, so with sample k
+    of the filled pattern carrying the share c_k of the region,
+
+    .. math::  P(\mathrm{peak} \le r) = \prod_k F_k(r)^{\,n_s c_k}
+
+    and the median solves P = 1/2. Where P_f vanishes this is Steinberg's (1 − e^{−r/b})^{n_s};
+    at N = M it is the filled aperture's sampled PSL. Not implemented: correlation between
+    neighbouring samples, and the difference between exact-N and independent draws beyond the
+    variance above.
+
+    Parameters
+    ----------
+    power, weight : arrays  [1]
+        The filled aperture's normalised power at the samples and their shares of the
+        sidelobe region (:func:`random_thinning_theory` gives one sample per resolution cell);
+        grouped into 0.1 dB bins of the power (down to 40 dB below the highest; the rest as 0).
+    sites : int   M
+    independent : float   n_s
+    """
+
+    BIN_DB = 0.1
+    SPAN_DB = 40.0
+
+    def __init__(self, power, weight, sites: int, independent: float):
+        p = np.asarray(power, dtype=float).ravel()
+        w = np.asarray(weight, dtype=float).ravel()
+        keep = w > 0
+        p, w = np.clip(p[keep], 0.0, 1.0), w[keep]
+        top = float(p.max()) if p.size else 0.0
+        db = 10 * np.log10(np.maximum(p, 1e-300))
+        floor = 10 * math.log10(top) - self.SPAN_DB if top > 0 else 0.0
+        k = np.where(db < floor, -1, np.floor((db - floor) / self.BIN_DB)).astype(int)
+        groups = np.unique(k)
+        self.power = np.array([0.0 if g < 0 else float(np.max(p[k == g])) for g in groups])
+        share = np.array([w[k == g].sum() for g in groups]) / w.sum()
+        self.exponent = independent * share
+        self.sites = int(sites)
+        self.independent = float(independent)
+        self.filled_psl = top
+
+    def _log_cdf(self, r: float, b: float) -> float:
+        var = b * (1.0 - self.power)
+        f = ncx2.cdf(2 * r / var, 2, 2 * self.power / var)
+        return float(np.sum(self.exponent * np.log(np.maximum(f, 1e-300))))
+
+    def median_peak(self, n: int) -> float:
+        """Median PSL of N of the M sites chosen at random  [1, linear]."""
+        m = self.sites
+        if n >= m or m <= 1:
+            return self.filled_psl
+        b = (m - n) / (n * (m - 1))
+        half = math.log(0.5)
+        lo = max(self.filled_psl, b) * 1e-3
+        hi = max(self.filled_psl, b) * 1e3
+        t = brentq(lambda x: self._log_cdf(math.exp(x), b) - half, math.log(lo), math.log(hi))
+        return math.exp(t)
+
+
+def _cell(coords, wavelength: float) -> float:
+    """Resolution cell λ/L along one axis  [1], L the extent plus one pitch (as n_s)."""
+    c = np.unique(np.round(np.asarray(coords), 9))
+    length = float(np.ptp(c)) + (float(np.min(np.diff(c))) if c.size > 1 else wavelength / 2)
+    return wavelength / length
+
+
+def random_thinning_theory(spec: Spec, sites, n_s: float) -> RandomThinning:
+    """:class:`RandomThinning` of a spec's candidate sites.
+
+    The filled pattern is sampled on the engine's grid over the sidelobe region of the scan
+    cone, and pooled into blocks of one resolution cell (λ/L per axis, the cell that defines
+    n_s): each block stands for one independent sample, whose coherent part is the highest
+    filled-pattern value in it (a lobe of the filled pattern spans about one cell; taking its
+    samples one by one would dilute its peak among its flanks).
+    """
+    filled = Layout.from_sites(sites)
+    eng, grid, _, _ = layout_engine(filled, spec.wavelength, spec.scan_max, spec.oversampling)
+    d = eng.detail(grid) if grid is not None else eng.detail()
+    g = d.grid
+    p = np.asarray(d.power, dtype=float).reshape(g.nr, g.nc)
+    w = np.asarray(d.sidelobe_weight, dtype=float).reshape(g.nr, g.nc)
+    bc = max(1, round(_cell(sites.x, spec.wavelength) / g.du))
+    br = 1 if g.nr == 1 or g.dv <= 0 else max(1, round(_cell(sites.y, spec.wavelength) / g.dv))
+    rows, cols = -(-g.nr // br) * br, -(-g.nc // bc) * bc
+    pp = np.zeros((rows, cols))
+    ww = np.zeros((rows, cols))
+    pp[: g.nr, : g.nc] = np.where(w > 0, p, 0.0)
+    ww[: g.nr, : g.nc] = w
+    blocks = (rows // br, br, cols // bc, bc)
+    top = pp.reshape(blocks).max(axis=(1, 3))
+    share = ww.reshape(blocks).sum(axis=(1, 3))
+    return RandomThinning(top, share, len(sites), n_s)
+
+
 @dataclass
 class SweepResult:
     rows: list
@@ -153,6 +278,8 @@ class SweepResult:
     spec: Spec | None = None
     independent_samples: float = 1.0
     sites: int = 0
+    requirements: dict | None = None
+    theory: RandomThinning | None = None
 
 
 def _budget_folder(out: Path, n: int) -> Path:
@@ -193,10 +320,10 @@ def _design_budget(spec_text: str, source: str, n: int) -> tuple[np.ndarray, dic
 
 
 def _write_budget(folder: Path, sites, mask, meta: dict) -> None:
-    """The sub-folder of one budget: layout.csv, then layout.json (which marks it done)."""
+    """The sub-folder of one budget, as one set: layout.csv, then layout.json (which marks
+    it done)."""
     folder.mkdir(parents=True, exist_ok=True)
-    write_layout_csv(folder / "layout.csv", Layout.from_sites(sites, mask))
-    atomic_write_json(folder / "layout.json", meta)
+    write_run_files(folder, Layout.from_sites(sites, mask), meta)
 
 
 def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict, list]:
@@ -256,8 +383,7 @@ def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict
         )
         folder = f"p{pt.elements:06d}"
         (out / folder).mkdir(exist_ok=True)
-        write_layout_csv(out / folder / "layout.csv", lay)
-        atomic_write_json(out / folder / "layout.json", meta)
+        write_run_files(out / folder, lay, meta)
         meta["_folder"] = folder
         metas[pt.elements] = meta
         folders.append(folder)
@@ -313,13 +439,16 @@ def run_sweep(
     workers: int = 1,
     progress=None,
     cluster: str | None = None,
+    extra_outputs=None,
 ) -> SweepResult:
     """Run the spec at every budget and write sweep.csv (and the per-budget folders).
 
     The budgets run in this process, in ``workers`` local processes, or on the Dask cluster
     at ``cluster`` (a scheduler address; ``workers`` is then ignored); the results do not
     depend on which. The spec's text goes to the workers and their layouts come back, so
-    every file is written here (see :mod:`thinning.analysis.cluster`).
+    every file is written here (see :mod:`thinning.analysis.cluster`). ``sweep.csv``,
+    ``sweep.json`` and what ``extra_outputs(result, folder)`` writes (the trade page) are one
+    set of files, ``sweep.json`` its record.
     """
     spec = load_spec(spec_path)
     sites = spec.sites()
@@ -359,12 +488,15 @@ def run_sweep(
     filled = _filled_figures(spec, sites)
     lin = spec.lattice.kind == "linear"
     n_s = independent_samples(sites.x, sites.y, spec.wavelength, spec.scan_max, lin)
-    req = spec.requirements.get("psl_db")
+    theory = random_thinning_theory(spec, sites, n_s)
+    reqs = dict(spec.requirements)
     filled_asl = 10 ** (filled["asl_db"] / 10)
     rows = []
     for n in budgets:
         meta = metas[n]
         asl_rand = expected_asl_random(n, m, filled_asl)
+        floor = (m - n) / (n * (m - 1)) if m > 1 else 0.0
+        verdict = all_met(judge(reqs, meta))
         rows.append(
             {
                 "elements": n,
@@ -375,16 +507,17 @@ def run_sweep(
                 "method_expected_asl_db": meta.get(
                     "method_expected_asl_db", round(float(to_db(asl_rand)), 6)
                 ),
-                "steinberg_median_psl_db": round(
-                    float(to_db(steinberg_median_peak(asl_rand, n_s))), 6
-                ),
+                "random_median_psl_db": round(float(to_db(theory.median_peak(n))), 6),
+                "steinberg_median_psl_db": None
+                if floor <= 0
+                else round(float(to_db(steinberg_median_peak(floor, n_s))), 6),
                 "directivity_dbi": meta["directivity_dbi"],
                 "pi_n_dbi": meta["pi_n_dbi"],
                 "directivity_minus_pi_n_db": meta["directivity_minus_pi_n_db"],
                 "hpbw_x_deg": meta["hpbw_deg"][0],
                 "hpbw_y_deg": meta["hpbw_deg"][1],
                 "grating_lobes": meta["grating_lobes"],
-                "meets_requirement": "" if req is None else bool(meta["psl_db"] <= req),
+                "meets_requirement": "" if verdict is None else verdict,
                 "evaluations": meta["evaluations"],
                 "runtime_s": meta["runtime_s"],
                 "stopped_by": meta["stopped_by"],
@@ -392,7 +525,7 @@ def run_sweep(
             }
         )
     smallest = None
-    if req is not None:
+    if reqs:
         ok = [r for r in rows if r["meets_requirement"] is True]
         smallest = min(ok, key=lambda r: r["elements"]) if ok else None
     buf = io.StringIO()
@@ -400,39 +533,54 @@ def run_sweep(
     w.writeheader()
     for r in rows:
         w.writerow({k: ("" if r[k] is None else r[k]) for k in SWEEP_COLUMNS})
-    files = [out / "sweep.csv", out / "sweep.json"]
-    atomic_write(files[0], buf.getvalue())
-    atomic_write_json(
-        files[1],
-        {
-            "spec_file": Path(spec.source).name,
-            "spec_digest_sha256": spec.digest,
-            "method": spec.method,
-            "seed": spec.seed,
-            "sites": m,
-            "independent_samples": n_s,
-            "requirement_psl_db": req,
-            "smallest_meeting_requirement": None if smallest is None else smallest["elements"],
-            "filled_aperture": filled,
-            "rows": rows,
-        },
-    )
-    return SweepResult(rows, out, smallest, filled, reused, files, req, spec, n_s, m)
+    req = reqs.get("psl_db")
+    res = SweepResult(rows, out, smallest, filled, reused, [], req, spec, n_s, m, reqs, theory)
+    record = {
+        "spec_file": Path(spec.source).name,
+        "spec_digest_sha256": spec.digest,
+        "method": spec.method,
+        "seed": spec.seed,
+        "sites": m,
+        "independent_samples": n_s,
+        "requirement_psl_db": req,
+        "requirements": {k: describe(k, v) for k, v in reqs.items()},
+        "smallest_meeting_requirement": None if smallest is None else smallest["elements"],
+        "smallest_tried": min(budgets),
+        "filled_aperture": filled,
+        "rows": rows,
+    }
+    with file_set(out, "sweep.json") as stage:
+        atomic_write(stage / "sweep.csv", buf.getvalue())
+        names = ["sweep.csv", "sweep.json"]
+        if extra_outputs is not None:
+            names += [Path(f).name for f in extra_outputs(res, stage) or ()]
+        record["files"] = file_digests(stage, exclude=("sweep.json",))
+        atomic_write_json(stage / "sweep.json", record)
+    res.files = [out / n for n in names]
+    return res
 
 
-def theory_curves(res: SweepResult, n_points: int = 200) -> dict:
-    """Random-thinning ASL, Steinberg's median PSL and the cell-gain rule on a fine N grid."""
+def theory_curves(res: SweepResult, n_points: int = 80) -> dict:
+    """Random-thinning ASL and median PSL, Steinberg's median of the random floor alone and
+    the cell-gain rule on a fine N grid."""
     m = res.sites
     lo = max(2, min(r["elements"] for r in res.rows) // 2)
     n = np.unique(np.linspace(lo, m, n_points).round().astype(int))
     filled_asl = 10 ** (res.filled["asl_db"] / 10)
     asl = np.array([expected_asl_random(int(k), m, filled_asl) for k in n])
-    med = np.array([steinberg_median_peak(a, res.independent_samples) for a in asl])
+    floor = np.array([(m - k) / (k * (m - 1)) if m > 1 else 0.0 for k in n])
+    med = np.array(
+        [steinberg_median_peak(f, res.independent_samples) if f > 0 else np.nan for f in floor]
+    )
+    theory = res.theory
+    rand = np.array([theory.median_peak(int(k)) for k in n]) if theory is not None else med
     r0 = res.rows[0]
     rule = r0["pi_n_dbi"] + 10 * np.log10(n / r0["elements"])  # the rule is linear in N
-    return {
-        "elements": n,
-        "expected_asl_db": 10 * np.log10(asl),
-        "steinberg_median_psl_db": 10 * np.log10(med),
-        "pi_n_dbi": rule,
-    }
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return {
+            "elements": n,
+            "expected_asl_db": 10 * np.log10(asl),
+            "random_median_psl_db": 10 * np.log10(rand),
+            "steinberg_median_psl_db": 10 * np.log10(med),
+            "pi_n_dbi": rule,
+        }

@@ -38,7 +38,7 @@ def cli():
 def _register():
     from . import score  # noqa: F401  (each module adds its command to `cli`)
 
-    for name in ("design", "export", "sweep", "stress"):
+    for name in ("design", "export", "sweep", "stress", "sites"):
         try:
             __import__(f"{__name__}.{name}")
         except ModuleNotFoundError as exc:
@@ -51,7 +51,8 @@ def main(argv=None) -> int:
     _register()
     prog = "thinning"
     try:
-        cli.main(args=argv, prog_name=prog, standalone_mode=False)
+        # a command's ctx.exit(status) comes back as the return value (click ≥ 8.2)
+        status = cli.main(args=argv, prog_name=prog, standalone_mode=False)
     except click.exceptions.Exit as exc:
         return exc.exit_code
     except click.UsageError as exc:
@@ -70,7 +71,7 @@ def main(argv=None) -> int:
     except click.ClickException as exc:
         click.echo(f"{prog}: error: {exc.format_message()}", err=True)
         return exc.exit_code or 1
-    return 0
+    return status if isinstance(status, int) else 0
 
 
 if __name__ == "__main__":

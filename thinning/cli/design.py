@@ -8,7 +8,41 @@ import click
 
 from . import cli
 
-__all__ = ["design"]
+__all__ = ["design", "summary_line"]
+
+
+#: How each way a search can end is told in the summary line.
+_STOPS = {
+    "evaluations": "evaluation budget reached: reproducible",
+    "generations": "generations done: reproducible",
+    "stall": "stalled, no improvement: reproducible",
+    "draws": "all draws done: reproducible",
+    "trials": "all trials done: reproducible",
+    "time": "time limit reached: the result depends on machine speed",
+    "interrupt": "interrupted: the best layout so far; the result depends on machine speed",
+}
+
+
+def summary_line(result) -> str:
+    """The one-line result of a design: figures, requirement verdicts, how the run ended."""
+    from ..analysis.requirements import verdict_phrase
+
+    m = result.metrics
+    s = result.search
+    verdicts = "".join(
+        f"; {verdict_phrase(k, v, plain=True)}" for k, v in m.get("requirements", {}).items()
+    )
+    ended = _STOPS.get(s.stopped_by, s.stopped_by)
+    if s.stopped_by not in _STOPS and not s.deterministic:
+        ended += ": the result depends on machine speed"
+    return (
+        f"{m['elements']} of {m['candidate_sites']} sites ({100 * m['fill']:.1f} %): "
+        f"PSL {m['psl_db']:.2f} dB, ASL {m['asl_db']:.2f} dB "
+        f"(random thinning {m['expected_asl_db']:.2f} dB), "
+        f"directivity {m['directivity_dbi']:.2f} dBi ({m['directivity_minus_pi_n_db']:+.2f} dB "
+        f"vs cell-gain rule){verdicts}; {s.evaluations:,} evaluations in {s.runtime_s:.1f} s "
+        f"({ended})"
+    )
 
 
 @cli.command()
@@ -18,7 +52,9 @@ __all__ = ["design"]
     "out_dir",
     required=True,
     type=click.Path(file_okay=False),
-    help="Folder for layout.csv, layout.json and the drawings (created if needed).",
+    help="Folder for layout.csv, layout.json, the drawings and report.html (created if "
+    "needed; checked before the search). The run replaces the files of the previous run "
+    "there as one set, or leaves them untouched.",
 )
 @click.option(
     "--workers",
@@ -28,11 +64,14 @@ __all__ = ["design"]
     "The result is the same for any number.",
 )
 @click.option("--quiet", is_flag=True, help="No progress on stderr.")
-def design(spec_toml, out_dir, workers, quiet):
+@click.pass_context
+def design(ctx, spec_toml, out_dir, workers, quiet):
     """Thin the spec's panel to its exact element budget with the lowest sidelobes.
 
-    Progress goes to stderr; Ctrl-C or the spec's time limit end the run with the best layout
-    so far written. The same spec and seed give the same layout.csv.
+    Progress goes to stderr; Ctrl-C or the spec's time limit end the search with the best
+    layout so far written (Ctrl-C: exit status 130). The same spec and seed give the same
+    layout.csv when the run ends by its evaluation budget, stall or generations
+    (layout.json: deterministic), not when the time limit or Ctrl-C ends it.
     """
     from ..analysis.design import format_progress, run_design
     from ..spec import load_spec
@@ -46,18 +85,11 @@ def design(spec_toml, out_dir, workers, quiet):
     )
     if not quiet and sys.stderr.isatty():
         sys.stderr.write("\n")
-    m = result.metrics
-    s = result.search
-    click.echo(
-        f"{m['elements']} of {m['candidate_sites']} sites ({100 * m['fill']:.1f} %): "
-        f"PSL {m['psl_db']:.2f} dB, ASL {m['asl_db']:.2f} dB "
-        f"(random thinning {m['expected_asl_db']:.2f} dB), "
-        f"directivity {m['directivity_dbi']:.2f} dBi ({m['directivity_minus_pi_n_db']:+.2f} dB "
-        f"vs cell-gain rule); {s.evaluations:,} evaluations in {s.runtime_s:.1f} s "
-        f"({s.stopped_by})"
-    )
+    click.echo(summary_line(result))
     for f in result.files:
         click.echo(f"wrote {f}")
+    if result.search.stopped_by == "interrupt":
+        ctx.exit(130)
 
 
 def _extra_outputs():

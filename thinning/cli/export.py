@@ -6,19 +6,27 @@ from pathlib import Path
 
 import click
 
+from ..outputs.deliver import DEFAULT_TRIALS
 from . import cli
 from ._options import check_angle, check_exponent, check_frequency, error_options, pattern_options
 
 __all__ = ["export", "report"]
 
 
-def _aperture_from(spec_path):
+def _spec_from(spec_path):
+    """(spec, its sites) of an optional --spec, or (None, None)."""
     if spec_path is None:
-        return None, None, None, ""
+        return None, None
     from ..spec import load_spec
 
     spec = load_spec(spec_path)
-    sites = spec.sites()
+    return spec, spec.sites()
+
+
+def _aperture_from(spec_path):
+    spec, sites = _spec_from(spec_path)
+    if spec is None:
+        return None, None, None, ""
     return spec.aperture, sites, spec.lattice, str(spec.raw.get("name", Path(spec.source).stem))
 
 
@@ -58,8 +66,22 @@ def _aperture_from(spec_path):
     callback=check_frequency,
     help="With --to json: add the layout's figures at this frequency [GHz].",
 )
-@click.option("--scan-max-deg", type=float, default=0.0, callback=check_angle)
-@click.option("--element-exponent", type=float, default=1.0, callback=check_exponent)
+@click.option(
+    "--scan-max-deg",
+    type=float,
+    default=0.0,
+    show_default=True,
+    callback=check_angle,
+    help="With --to json and --freq-ghz: half-angle of the scan cone [deg].",
+)
+@click.option(
+    "--element-exponent",
+    type=float,
+    default=1.0,
+    show_default=True,
+    callback=check_exponent,
+    help="With --to json and --freq-ghz: element power pattern cos^Q(theta); 0 = isotropic.",
+)
 def export(
     layout_csv, fmt, out_path, spec_path, footprint_mm, freq_ghz, scan_max_deg, element_exponent
 ):
@@ -94,11 +116,7 @@ def export(
             from ..units import deg_to_rad, ghz_to_hz
 
             doc["metrics"] = score_layout(
-                layout,
-                ghz_to_hz(freq_ghz),
-                deg_to_rad(scan_max_deg),
-                element_exponent,
-                sites=None if sites is None else len(sites),
+                layout, ghz_to_hz(freq_ghz), deg_to_rad(scan_max_deg), element_exponent, sites=sites
             ).to_dict()
         atomic_write_json(out, doc)
         files = [out]
@@ -136,9 +154,11 @@ def export(
     "spec_path",
     type=click.Path(dir_okay=False),
     default=None,
-    help="Spec of the panel: outline for the drawing, sites for the fill.",
+    help="Spec of the panel: outline for the drawing, candidate sites for the fill and the "
+    "random-thinning expectation, its name, constraints and requirements, and its text in an "
+    "appendix.",
 )
-@error_options(trials=100)
+@error_options(trials=DEFAULT_TRIALS)
 def report(
     layout_csv,
     freq_ghz,
@@ -155,13 +175,17 @@ def report(
     trials,
 ):
     """Write a self-contained HTML design-review report for a layout file."""
+    from ..analysis.requirements import judge
+    from ..analysis.score import score_layout
     from ..errors import OutputError
     from ..io.layout_csv import read_layout_csv
     from ..outputs.deliver import default_stress, write_report
     from ..units import deg_to_rad, ghz_to_hz
 
     layout = read_layout_csv(layout_csv)
-    aperture, sites, _, name = _aperture_from(spec_path)
+    spec, sites = _spec_from(spec_path)
+    aperture = None if spec is None else spec.aperture
+    name = "" if spec is None else str(spec.raw.get("name", Path(spec.source).stem))
     out = Path(out_path) if out_path else Path(layout_csv).parent / "report.html"
     if not out.parent.is_dir():
         raise OutputError(f"{out}: cannot write: folder '{out.parent}' does not exist")
@@ -181,6 +205,8 @@ def report(
 
         raise LayoutError(f"--failures {failures}: the layout has only {len(layout)} elements")
     stress = default_stress(layout, f, scan, element_exponent, cfg)
+    metrics = score_layout(layout, f, scan, element_exponent, sites=sites).to_dict()
+    verdicts = None if spec is None else judge(spec.requirements, metrics)
     path = write_report(
         out,
         layout,
@@ -190,7 +216,11 @@ def report(
         aperture=aperture,
         sites=sites,
         stress=stress,
-        provenance={"layout_file": str(layout_csv)},
+        provenance={"layout_file": Path(layout_csv).name},
         title=f"{name or Path(layout_csv).stem}: array layout report",
+        metrics=metrics,
+        spec=spec,
+        requirements=verdicts,
+        footprint_mm=None if spec is None else spec.output.get("footprint_mm"),
     )
     click.echo(f"wrote {path}")

@@ -7,9 +7,17 @@ import json
 import click
 
 from . import cli
-from ._options import pattern_options
+from ._options import check_angle, check_exponent, check_frequency
 
 __all__ = ["score"]
+
+
+def _sites_text(r: dict) -> str:
+    """M and how it was found, from ``sites_basis``."""
+    from ..analysis.score import SITES_BASIS
+
+    m = "unlimited" if r["sites"] is None else f"{r['sites']}"
+    return f"{m} ({SITES_BASIS.get(r.get('sites_basis'), 'given')})"
 
 
 def format_table(r: dict) -> str:
@@ -23,7 +31,7 @@ def format_table(r: dict) -> str:
 
     rows = [
         ("elements", f"{r['elements']}"),
-        ("lattice sites (M)", "n/a (off-lattice)" if r["sites"] is None else f"{r['sites']}"),
+        ("candidate sites (M)", _sites_text(r)),
         ("fill", "n/a" if r["fill"] is None else f"{100 * r['fill']:.1f} %"),
         ("frequency", f"{r['frequency_ghz']:g} GHz"),
         ("scan cone", f"{r['scan_max_deg']:g} deg half-angle"),
@@ -45,28 +53,118 @@ def format_table(r: dict) -> str:
     ]
     w = max(len(k) for k, _ in rows)
     lines = [f"{k:<{w}}  {v}" for k, v in rows]
-    lines.append("PSL and ASL are array-factor figures over the disc |(u, v)| <= 1 + sin(scan).")
+    lines.append(
+        "PSL, ASL and HPBW are array-factor figures (isotropic elements); PSL and ASL over the "
+        "disc |(u, v)| <= 1 + sin(scan)."
+    )
     return "\n".join(lines)
+
+
+class _StageProgress:
+    """Prints each stage of a long score on stderr, with the time it took; on a terminal the
+    running stage's elapsed time ticks every second."""
+
+    def __init__(self):
+        import sys
+        import threading
+        import time
+
+        self._sys, self._time, self._threading = sys, time, threading
+        self.tty = sys.stderr.isatty()
+        self.stage = None
+        self.t0 = self.start = time.perf_counter()
+        self._stop = threading.Event()
+        self._ticker = None
+
+    def __call__(self, text):
+        self._finish_stage()
+        self.stage, self.t0 = text, self._time.perf_counter()
+        self._sys.stderr.write(f"thinning score: {text} …" + ("" if self.tty else "\n"))
+        self._sys.stderr.flush()
+        if self.tty and self._ticker is None:
+            self._ticker = self._threading.Thread(target=self._tick, daemon=True)
+            self._ticker.start()
+
+    def _tick(self):
+        while not self._stop.wait(1.0):
+            if self.stage is not None:
+                dt = self._time.perf_counter() - self.t0
+                self._sys.stderr.write(f"\rthinning score: {self.stage} … {dt:.0f} s")
+                self._sys.stderr.flush()
+
+    def _finish_stage(self):
+        if self.stage is None:
+            return
+        dt = self._time.perf_counter() - self.t0
+        end = f"\rthinning score: {self.stage}: {dt:.1f} s\n" if self.tty else ""
+        if not self.tty:
+            end = f"thinning score: {self.stage}: done in {dt:.1f} s\n"
+        self._sys.stderr.write(end)
+        self._sys.stderr.flush()
+        self.stage = None
+
+    def close(self):
+        self._stop.set()
+        self._finish_stage()
 
 
 @cli.command()
 @click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
-@pattern_options
+@click.option(
+    "--spec",
+    "spec_path",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="Spec the layout was designed from: its candidate sites (for the fill and the "
+    "random-thinning expectation), frequency, scan cone, element pattern and oversampling, "
+    "unless given here; the figures then equal the design's layout.json.",
+)
+@click.option(
+    "--freq-ghz",
+    type=float,
+    default=None,
+    callback=check_frequency,
+    help="Design frequency [GHz] (required without --spec).",
+)
+@click.option(
+    "--scan-max-deg",
+    type=float,
+    default=None,
+    callback=check_angle,
+    help="Half-angle of the scan cone [deg]  [default: the spec's, or 0].",
+)
+@click.option(
+    "--element-exponent",
+    type=float,
+    default=None,
+    callback=check_exponent,
+    help="Element power pattern cos^Q(theta); 0 = isotropic  [default: the spec's, or 1].",
+)
 @click.option(
     "--sites",
     type=click.IntRange(min=1),
     default=None,
-    help="Candidate sites M the layout was thinned from (for the expected ASL).",
+    help="Candidate sites M the layout was thinned from (for the fill and the expected ASL), "
+    "when there is no spec; without either, M is the layout's own lattice inside the convex "
+    "hull of its elements.",
 )
 @click.option(
     "--oversampling",
     type=click.FloatRange(min=2.0, max=32.0),
-    default=4.0,
-    show_default=True,
-    help="Pattern samples per null width, per axis.",
+    default=None,
+    help="Pattern samples per null width, per axis  [default: the spec's, or 4].",
 )
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of a table.")
-def score(layout_csv, freq_ghz, scan_max_deg, element_exponent, sites, oversampling, as_json):
+def score(
+    layout_csv,
+    spec_path,
+    freq_ghz,
+    scan_max_deg,
+    element_exponent,
+    sites,
+    oversampling,
+    as_json,
+):
     """Score a layout: PSL, ASL, directivity, beamwidth and grating lobes."""
     from ..analysis.score import score_layout
     from ..errors import LayoutError
@@ -74,19 +172,38 @@ def score(layout_csv, freq_ghz, scan_max_deg, element_exponent, sites, oversampl
     from ..units import deg_to_rad, ghz_to_hz
 
     layout = read_layout_csv(layout_csv)
+    spec = None
+    if spec_path is not None:
+        from ..spec import load_spec
+
+        spec = load_spec(spec_path)
+        if sites is not None:
+            raise click.UsageError("give --sites or --spec, not both (the spec has the sites)")
+    elif freq_ghz is None:
+        raise click.UsageError("give --freq-ghz (or --spec, whose frequency is used)")
     if sites is not None and sites < len(layout):
         raise LayoutError(
             f"--sites {sites}: fewer candidate sites than the {len(layout)} "
             f"elements in {layout_csv}"
         )
-    result = score_layout(
-        layout,
-        ghz_to_hz(freq_ghz),
-        deg_to_rad(scan_max_deg),
-        element_exponent,
-        sites=sites,
-        oversampling=oversampling,
-    ).to_dict()
+    frequency = ghz_to_hz(freq_ghz) if freq_ghz is not None else spec.frequency
+    scan = deg_to_rad(scan_max_deg) if scan_max_deg is not None else 0.0
+    if scan_max_deg is None and spec is not None:
+        scan = spec.scan_max
+    q = element_exponent if element_exponent is not None else 1.0
+    if element_exponent is None and spec is not None:
+        q = spec.element_exponent
+    over = oversampling if oversampling is not None else 4.0
+    if oversampling is None and spec is not None:
+        over = spec.oversampling
+    candidates = spec.sites() if spec is not None else sites
+    progress = _StageProgress()  # stages of a long direct summation, on stderr
+    try:
+        result = score_layout(
+            layout, frequency, scan, q, sites=candidates, oversampling=over, progress=progress
+        ).to_dict()
+    finally:
+        progress.close()
     if as_json:
         click.echo(json.dumps(result, allow_nan=False))
     else:

@@ -6,6 +6,7 @@ import json
 
 import click
 
+from ..outputs.deliver import DEFAULT_TRIALS
 from . import cli
 from ._options import error_options, pattern_options
 
@@ -23,13 +24,13 @@ def format_stress(r: dict) -> str:
         f"{r['scan_max_deg']:g} deg, element cos^{r['element_exponent']:g}",
         "",
         "Scan (phase steering at the design frequency):",
-        f"  {'theta':>6} {'phi':>5} {'PSL dB':>8} {'gain dBi':>9} {'scan loss':>9} "
+        f"  {'theta':>6} {'phi':>5} {'PSL dB':>8} {'gain dBi':>9} {'loss dB':>9} "
         f"{'HPBW deg':>9} {'broadening':>10} {'1/cos':>6}",
     ]
     for s in r["scan"]:
         out.append(
             f"  {s['theta_deg']:>6.1f} {s['phi_deg']:>5.0f} {s['psl_db']:>8.2f} "
-            f"{s['gain_dbi']:>9.2f} {s['scan_loss_db']:>9.2f} "
+            f"{s['gain_dbi']:>9.2f} {-s['scan_loss_db'] + 0.0:>9.2f} "
             f"{(s['hpbw_deg'] or float('nan')):>9.3f} "
             f"{(s['hpbw_broadening'] or float('nan')):>10.4f} {s['cos_law']:>6.4f}"
         )
@@ -66,7 +67,7 @@ def format_stress(r: dict) -> str:
 @cli.command()
 @click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
 @pattern_options
-@error_options(trials=200)
+@error_options(trials=DEFAULT_TRIALS)
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True)
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
 def stress(

@@ -15,7 +15,7 @@ __all__ = ["sweep"]
     "--elements",
     default=None,
     metavar="LIST|START:STOP:STEP",
-    help="Budgets: 100,150,200 or 100:300:50 (STOP included).",
+    help="Budgets: 100,150,200 or 100:300:50 (counting up, STOP included).",
 )
 @click.option("--fill", default=None, metavar="LIST", help="Budgets as fill fractions: 0.3,0.5.")
 @click.option(
@@ -44,7 +44,7 @@ __all__ = ["sweep"]
 def sweep(spec_toml, elements, fill, out_dir, workers, cluster, quiet):
     """Run the spec's method at several budgets and compare them with theory."""
     from ..analysis.sweep import run_sweep
-    from ..outputs.sweep_page import write_sweep_outputs
+    from ..outputs.sweep_page import answer_text, write_sweep_outputs
 
     def progress(n, meta):
         if not quiet:
@@ -55,31 +55,36 @@ def sweep(spec_toml, elements, fill, out_dir, workers, cluster, quiet):
             )
 
     res = run_sweep(
-        spec_toml, elements, fill, out_dir, workers=workers, progress=progress, cluster=cluster
+        spec_toml,
+        elements,
+        fill,
+        out_dir,
+        workers=workers,
+        progress=progress,
+        cluster=cluster,
+        extra_outputs=write_sweep_outputs,
     )
-    files = res.files + write_sweep_outputs(res)
+    files = res.files
     if res.reused:
         click.echo(
             f"reused {len(res.reused)} budget(s) already done: {', '.join(map(str, res.reused))}"
         )
     click.echo(
-        f"{'N':>7} {'fill':>6} {'PSL dB':>8} {'ASL dB':>8} {'rand ASL':>9} "
+        f"{'N':>7} {'fill':>6} {'PSL dB':>8} {'rand PSL':>9} {'ASL dB':>8} {'rand ASL':>9} "
         f"{'D dBi':>7} {'piN dBi':>8}"
     )
     for r in res.rows:
         click.echo(
-            f"{r['elements']:>7} {r['fill']:>6.3f} {r['psl_db']:>8.2f} {r['asl_db']:>8.2f} "
+            f"{r['elements']:>7} {r['fill']:>6.3f} {r['psl_db']:>8.2f} "
+            f"{r['random_median_psl_db']:>9.2f} {r['asl_db']:>8.2f} "
             f"{r['expected_asl_db']:>9.2f} {r['directivity_dbi']:>7.2f} "
             f"{r['pi_n_dbi']:>8.2f}"
         )
-    if res.requirement is not None:
-        if res.smallest_meeting is None:
-            click.echo(f"no budget in the sweep meets PSL <= {res.requirement:g} dB")
-        else:
-            s = res.smallest_meeting
-            click.echo(
-                f"smallest budget meeting PSL <= {res.requirement:g} dB: {s['elements']} "
-                f"elements (PSL {s['psl_db']:.2f} dB), layout in {res.folder / s['folder']}"
-            )
+    click.echo("rand PSL: median PSL of random thinning; rand ASL: its expected ASL.")
+    if res.requirements:
+        line = answer_text(res, plain=True)
+        if res.smallest_meeting is not None:
+            line += f"; layout in {res.folder / res.smallest_meeting['folder']}"
+        click.echo(line)
     for f in files:
         click.echo(f"wrote {f}")

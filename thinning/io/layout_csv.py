@@ -15,7 +15,8 @@ Format (UTF-8, a byte-order mark is accepted; comma-separated; a header row; no 
 ``amplitude``
     Linear amplitude weight ≥ 0 (optional; default 1). Not all zero.
 
-Header names are case-sensitive; surrounding spaces are ignored. Other columns are ignored
+At least two elements (:data:`MIN_ELEMENTS`). Header names are case-sensitive; surrounding
+spaces are ignored. Other columns are ignored
 on reading (a writer may add them, e.g. per-element notes). Blank lines are skipped. Two
 elements within 1 µm of each other are an error.
 
@@ -40,11 +41,20 @@ from ..geometry.layout import GRID_TOL, Layout
 from ..units import m_to_mm, mm_to_m
 from .atomic import atomic_open
 
-__all__ = ["read_layout_csv", "write_layout_csv", "REQUIRED_COLUMNS", "OPTIONAL_COLUMNS"]
+__all__ = [
+    "read_layout_csv",
+    "write_layout_csv",
+    "REQUIRED_COLUMNS",
+    "OPTIONAL_COLUMNS",
+    "MIN_ELEMENTS",
+]
 
 REQUIRED_COLUMNS = ("x_mm", "y_mm")
 OPTIONAL_COLUMNS = ("id", "row", "col", "amplitude")
 _STANDARD = ("id", "x_mm", "y_mm", "row", "col", "amplitude")
+
+#: Fewest elements a layout file may hold: no figure of a one-element array means anything.
+MIN_ELEMENTS = 2
 
 
 def _err(name: str, line: int | None, column: str | None, message: str) -> LayoutError:
@@ -207,6 +217,14 @@ def read_layout_csv(path: str | os.PathLike) -> Layout:
                     f"{cols['amplitude'][i].strip()!r} is negative; weights are linear and >= 0",
                 )
             amplitude[i] = a
+    if len(lines) < MIN_ELEMENTS:
+        raise _err(
+            name,
+            lines[0],
+            None,
+            "one element only: a one-element array has no sidelobes, beam or fill to score "
+            f"(a layout needs at least {MIN_ELEMENTS} elements)",
+        )
     if amplitude is not None and not amplitude.any():
         raise _err(name, None, "amplitude", f"every weight is zero (lines {lines[0]}-{lines[-1]})")
 

@@ -1,8 +1,9 @@
 """The files a design hands over: drawings for the mechanical designers and the review report.
 
-``thinning design`` calls :func:`write_deliverables` after it has written ``layout.csv`` and
-``layout.json``; ``thinning export`` and ``thinning report`` call the pieces for any layout
-file. matplotlib and ezdxf are imported here, never at package import.
+``thinning design`` calls :func:`write_deliverables` with the staging folder of its file set,
+after ``layout.csv`` and before ``layout.json``; ``thinning export`` and ``thinning report``
+call the pieces for any layout file. matplotlib and ezdxf are imported here, never at package
+import.
 """
 
 from __future__ import annotations
@@ -12,7 +13,17 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["write_deliverables", "write_drawings", "write_report", "default_stress"]
+__all__ = [
+    "write_deliverables",
+    "write_drawings",
+    "write_report",
+    "default_stress",
+    "DEFAULT_TRIALS",
+]
+
+#: Monte Carlo trials of the built-array analysis, for ``stress``, ``report`` and a design's
+#: report alike (a spec's [stress] trials overrides it).
+DEFAULT_TRIALS = 200
 
 
 def write_drawings(
@@ -62,7 +73,8 @@ def write_drawings(
 
 def default_stress(layout, frequency, scan_max, q, spec_stress: dict | None, robust=None):
     """The built-array analysis for the report: the scan table always; band edges and Monte
-    Carlo errors when the spec states them ([stress] or [robust])."""
+    Carlo errors when the spec states them ([stress] or [robust]). Without an error the
+    Monte Carlo is a single trial (the nominal array), which the report leaves out."""
     from ..analysis.stress import stress_layout
     from ..engine.excitation import ErrorModel
 
@@ -84,7 +96,7 @@ def default_stress(layout, frequency, scan_max, q, spec_stress: dict | None, rob
         band=None if band is None else (band[0] * 1e9, band[1] * 1e9),
         steering=cfg.get("steering", "phase"),
         model=model,
-        trials=int(cfg.get("trials", 100)),
+        trials=int(cfg.get("trials", DEFAULT_TRIALS)) if model.any else 1,
         seed=int(cfg.get("seed", 0)),
     )
 
@@ -105,6 +117,9 @@ def write_report(
     metrics=None,
     stress=None,
     title="Thinned array design report",
+    spec=None,
+    requirements=None,
+    footprint_mm=None,
 ) -> Path:
     from .report import report_for_layout
 
@@ -124,11 +139,16 @@ def write_report(
         metrics=metrics,
         stress=stress,
         title=title,
+        spec=spec,
+        requirements=requirements,
+        footprint_mm=footprint_mm,
     )
 
 
 def write_deliverables(result, out: Path) -> list[Path]:
-    """Drawings, the best-of-random baseline and report.html for a finished design."""
+    """Drawings, the best-of-random baseline and report.html for a finished design, into
+    ``out`` (the staging folder of the run's file set); returns the paths written. The
+    baseline's figures go into ``result.metrics`` (layout.json is written after this)."""
     from ..search import run_method
 
     spec = result.spec
@@ -171,7 +191,6 @@ def write_deliverables(result, out: Path) -> list[Path]:
         spec.raw.get("stress"),
         spec.robust,
     )
-    png = (out / "layout.png").read_bytes() if (out / "layout.png").exists() else None
     m = result.metrics
     prov = {
         k: m.get(k)
@@ -182,6 +201,7 @@ def write_deliverables(result, out: Path) -> list[Path]:
             "evaluations",
             "runtime_s",
             "stopped_by",
+            "deterministic",
             "spec_file",
         )
     }
@@ -198,14 +218,12 @@ def write_deliverables(result, out: Path) -> list[Path]:
             history=s.history,
             baseline=baseline,
             provenance=prov,
-            layout_png=png,
             metrics=m,
             stress=stress,
             title=f"{name}: thinned array design report",
+            spec=spec,
+            requirements=m.get("requirements"),
+            footprint_mm=fp,
         )
     )
-    if baseline is not None:  # layout.json gains the baseline figures
-        from ..io.atomic import atomic_write_json
-
-        atomic_write_json(out / "layout.json", result.metrics)
     return files

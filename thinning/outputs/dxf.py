@@ -19,6 +19,11 @@ TITLE      6     The title, above the drawing.
 Colours are AutoCAD Colour Index numbers. Coordinates are the layout's metres times 1000,
 written with full float64 precision (ezdxf writes the shortest text that reads back to the same
 float), so centres read back exactly.
+
+The header's drawing extents (``$EXTMIN``, ``$EXTMAX``, and the limits ``$LIMMIN``,
+``$LIMMAX``) enclose the outline, every element circle, the labels and the title (text widths
+estimated generously, 0.9 × the height per character), and the active viewport is centred on
+them and sized to show them all, so a CAD program opens the file zoomed to the panel.
 """
 
 from __future__ import annotations
@@ -52,6 +57,12 @@ _MEASUREMENT_METRIC = 1
 
 #: Linetype of the clearance boundary.
 _DASHED = "DASHED"
+
+#: Estimated width of a character of TEXT, as a fraction of its height (generous).
+_TEXT_WIDTH = 0.9
+
+#: Width / height of the active viewport ezdxf creates.
+_VIEW_ASPECT = 1.34
 
 
 def _one_line(text: str) -> str:
@@ -151,9 +162,9 @@ def write_layout_dxf(
         msp.add_circle(centre, r, dxfattribs={"layer": "ELEMENTS"})
         msp.add_point(centre, dxfattribs={"layer": "ELEMENTS"})
 
+    h = d / 3.0
+    off = r * np.sqrt(0.5)  # on the circle, at 45° to the upper right
     if labels:
-        h = d / 3.0
-        off = r * np.sqrt(0.5)  # on the circle, at 45° to the upper right
         for (x, y), text in zip(xy, layout.element_ids, strict=True):
             msp.add_text(
                 _one_line(text),
@@ -161,6 +172,10 @@ def write_layout_dxf(
                 dxfattribs={"layer": "LABELS", "insert": (float(x + off), float(y + off))},
             )
 
+    ext_lo, ext_hi = lo.copy(), hi.copy()  # the drawing's extents, text included
+    if labels and len(xy):
+        widest = max(len(_one_line(t)) for t in layout.element_ids)
+        ext_hi = np.maximum(ext_hi, xy.max(axis=0) + off + [_TEXT_WIDTH * h * widest, h])
     span = float(max(hi - lo))
     th = max(0.02 * span, d / 2.0)
     lines = (title or layout_title(layout)).splitlines() or [""]
@@ -173,12 +188,23 @@ def write_layout_dxf(
                 "insert": (float(lo[0]), float(hi[1] + th * (1 + 1.6 * k))),
             },
         )
+        ext_hi[0] = max(ext_hi[0], lo[0] + _TEXT_WIDTH * th * len(line))
 
-    top = hi[1] + th * (1.6 * len(lines) + 1)
-    centre = ((lo[0] + hi[0]) / 2.0, (lo[1] + top) / 2.0)
-    doc.set_modelspace_vport(
-        height=1.1 * float(max(top - lo[1], (hi[0] - lo[0]) / 1.5)), center=centre
-    )
+    ext_hi[1] = max(ext_hi[1], hi[1] + th * (1.6 * (len(lines) - 1) + 2))
+    # ezdxf copies the model space's extents and limits into the header when it writes,
+    # unless they are all zero (a false vector): set both
+    extents = {
+        "extmin": (float(ext_lo[0]), float(ext_lo[1]), 0.0),
+        "extmax": (float(ext_hi[0]), float(ext_hi[1]), 0.0),
+        "limmin": (float(ext_lo[0]), float(ext_lo[1])),
+        "limmax": (float(ext_hi[0]), float(ext_hi[1])),
+    }
+    for key, value in extents.items():
+        msp.dxf.set(key, value)
+        doc.header[f"${key.upper()}"] = value
+    width, height = (float(v) for v in ext_hi - ext_lo)
+    centre = ((ext_lo[0] + ext_hi[0]) / 2.0, (ext_lo[1] + ext_hi[1]) / 2.0)
+    doc.set_modelspace_vport(height=1.05 * max(height, width / _VIEW_ASPECT), center=centre)
 
     stream = io.StringIO()
     doc.write(stream)

@@ -367,6 +367,7 @@ def fig_uv_map(
     uv_map=None,
     floor_db: float = FLOOR_DB,
     psl_db: float | None = None,
+    marks=None,
 ) -> Figure:
     """The u-v power map with the visible region, scan cone and sidelobe region marked.
 
@@ -379,8 +380,11 @@ def fig_uv_map(
     floor_db : float  [dB]   display floor (raised to PSL − 30 dB when ``psl_db`` is given
         and that is higher)
     psl_db : float, optional  [dB]
+    marks : (K, 2) array, optional  [1]   where the PSL lobe is (and its repeats), marked ×
     """
     s = math.sin(float(scan_max))
+    marks = np.zeros((0, 2)) if marks is None else np.asarray(marks, dtype=float).reshape(-1, 2)
+    label = "highest sidelobe" + (f" ({psl_db:.2f} dB)" if psl_db is not None else "")
     if uv_map is None:
         uv_map = uv_power_map(layout, wavelength, 1.0 + s, scan_max=scan_max)
     u, v, p_db = uv_map
@@ -391,15 +395,18 @@ def fig_uv_map(
         fig = _new_figure((7.0, 4.4))
         ax = fig.add_subplot()
         ax.plot(u, np.maximum(p_db, floor), lw=0.9, color="C0", label="|AF|²")
-        marks = [(1.0, "k", "-", "visible region |u| = 1")]
+        lines = [(1.0, "k", "-", "visible region |u| = 1")]
         if s > 0:
-            marks += [
+            lines += [
                 (s, "C2", ":", f"scan cone |u| = sin {math.degrees(scan_max):.3g}°"),
                 (1.0 + s, "C3", "--", "sidelobe region |u| = 1 + sin θmax"),
             ]
-        for x, col, ls, lab in marks:
+        for x, col, ls, lab in lines:
             ax.axvline(x, color=col, ls=ls, lw=1.0, label=lab)
             ax.axvline(-x, color=col, ls=ls, lw=1.0)
+        if len(marks):
+            at = marks[:, 0]
+            ax.plot(at, np.full(at.shape, psl_db or 0.0), "x", color="C3", ms=8, label=label)
         ax.set_xlim(u[0], u[-1])
         ax.set_ylim(floor, 3.0)
         ax.set_xlabel("u = sin θ cos φ  [1]")
@@ -428,6 +435,8 @@ def fig_uv_map(
     if s > 0:
         _circle(ax, s, ":", f"scan cone (radius sin {math.degrees(scan_max):.3g}°)")
         _circle(ax, 1.0 + s, "--", f"sidelobe region (radius 1 + sin θmax = {1 + s:.3f})")
+    if len(marks):
+        ax.plot(marks[:, 0], marks[:, 1], "x", color="red", ms=9, mew=2, label=label)
     ax.set_xlabel("u = sin θ cos φ  [1]")
     ax.set_ylabel("v = sin θ sin φ  [1]")
     ax.set_title("Array factor in u-v (broadside beam, isotropic elements)")
@@ -458,12 +467,18 @@ def fig_principal_cuts(
     data = cuts if cuts is not None else principal_cuts(layout, wavelength)
     filled = principal_cuts(filled_layout, wavelength) if filled_layout is not None else None
     planes = list(data["cuts"])
-    fig = _new_figure((6.4 * len(planes), 3.9) if len(planes) > 1 else (7.0, 3.9))
+    fig = _new_figure((6.4 * len(planes), 4.3) if len(planes) > 1 else (7.0, 4.3))
     deg = math.degrees(float(scan_max))
     for i, plane in enumerate(planes):
         ax = fig.add_subplot(1, len(planes), i + 1)
-        if deg > 0:
-            ax.axvspan(-deg, deg, color="0.9", label=f"scan cone ±{deg:.3g}°")
+        if deg > 0:  # where the beam peak can be steered: not a band of observation angles
+            ax.annotate(
+                "",
+                xy=(-deg, 4.5),
+                xytext=(deg, 4.5),
+                arrowprops={"arrowstyle": "<->", "color": "C2", "lw": 1.2},
+            )
+            ax.text(0, 5.5, f"beam steering range ±{deg:.3g}°", ha="center", color="C2", fontsize=8)
         if filled is not None and plane in filled["cuts"]:
             ax.plot(
                 filled["theta_deg"],
@@ -480,14 +495,14 @@ def fig_principal_cuts(
             label=f"layout ({len(layout)} elements)",
         )
         ax.set_xlim(-90, 90)
-        ax.set_ylim(floor_db, 3.0)
+        ax.set_ylim(floor_db, 9.0 if deg > 0 else 3.0)
         ax.set_xticks(np.arange(-90, 91, 30))
-        ax.set_xlabel("θ from boresight  [deg]")
+        ax.set_xlabel("observation angle θ from boresight  [deg]")
         ax.set_ylabel("normalised |AF|²  [dB]")
         what = "v = 0" if plane == "x-z" else "u = 0"
         ax.set_title(f"{plane} plane ({what}), exact, isotropic elements", fontsize=10)
         ax.grid(alpha=0.3)
-        ax.legend(loc="upper right", fontsize=7, framealpha=0.9)
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), ncols=2, fontsize=7)
     return fig
 
 
@@ -503,11 +518,17 @@ def fig_scan_psl(table: dict, psl_db: float | None = None) -> Figure:
     ax = fig.add_subplot()
     th = table["theta_deg"]
     marker = "o" if th.size < 25 else None
-    for j, ph in enumerate(table["phi_deg"]):
-        y = np.where(np.isfinite(table["psl_db"][:, j]), table["psl_db"][:, j], np.nan)
-        ax.plot(th, y, marker=marker, ms=3, lw=1.0, label=f"φ = {ph:g}°")
+    psl = np.where(np.isfinite(table["psl_db"]), table["psl_db"], np.nan)
+    if np.all(np.isnan(psl)) or np.nanmax(psl) - np.nanmin(psl) <= 0.005:  # one line for all
+        planes = ", ".join(f"{ph:g}°" for ph in table["phi_deg"])
+        ax.plot(th, psl[:, 0], marker=marker, ms=3, lw=1.0, label=f"every plane (φ = {planes})")
+    else:
+        for j, ph in enumerate(table["phi_deg"]):
+            ax.plot(th, psl[:, j], marker=marker, ms=3, lw=1.0, label=f"φ = {ph:g}°")
     if psl_db is not None and math.isfinite(psl_db):
-        ax.axhline(psl_db, color="k", ls="--", lw=0.9, label=f"PSL over the cone {psl_db:.2f} dB")
+        ax.axhline(
+            psl_db, color="k", ls="--", lw=0.9, label=f"PSL over the cone {psl_db:.2f} dB (refined)"
+        )
     ax.set_xlabel("scan angle θ₀  [deg]")
     ax.set_ylabel("worst sidelobe  [dB]")
     ax.set_title("Worst sidelobe vs scan angle (sampled, not refined)", fontsize=10)

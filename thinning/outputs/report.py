@@ -1,13 +1,20 @@
 """One self-contained HTML report of a design: figures, tables, cautions and provenance.
 
-The report is a single file: CSS inline, images embedded as base64 PNG data URIs, no
-scripts and no external resources, so it can be mailed, archived and opened offline. It is
-written atomically (:mod:`thinning.io.atomic`): a failed run leaves no half-written file.
+The report is a single file: CSS inline, the layout drawing as inline SVG (vector, zoomable,
+element ids on demand), the pattern figures embedded as base64 PNG data URIs, no scripts and
+no external resources, so it can be mailed, archived and opened offline. It is written
+atomically (:mod:`thinning.io.atomic`): a failed run leaves no half-written file.
 
-:func:`build_report` lays out figures and figures-of-merit that the caller has computed;
-:func:`report_for_layout` computes them for one layout (scoring, u-v map, principal cuts,
-worst sidelobe across the scan cone, convergence, comparison) and then builds the report.
-matplotlib is imported only by the latter.
+It reads as a design review does: first the verdict on each requirement, how the run ended,
+the panel and its constraints and the figures of merit; then the drawing, the pattern, the
+scanned and built array, the search; the cautions, the provenance and the spec itself.
+Sections without data (no search history for a layout file, no error model) are left out.
+
+:func:`build_report` lays out what the caller has computed (the HTML pieces are in
+:mod:`thinning.outputs.report_sections`); :func:`report_for_layout` computes the figures for
+one layout (scoring, u-v map, principal cuts, worst sidelobe across the scan cone,
+convergence, comparison) and then builds the report. matplotlib is imported only by the
+latter.
 """
 
 from __future__ import annotations
@@ -24,6 +31,8 @@ import numpy as np
 from ..errors import OutputError
 from ..geometry.layout import Layout
 from ..io.atomic import atomic_write
+from . import report_sections as rs
+from .svg_drawing import SVG_CSS, svg_controls
 
 __all__ = ["CAUTIONS", "SECTIONS", "build_report", "report_for_layout"]
 
@@ -33,10 +42,10 @@ CAUTIONS: tuple[str, ...] = (
     "the array transmits, check the field strength everywhere people can be, over the whole "
     "scan range and at full power, against the exposure limits in force where it operates.",
     "Idealised model: every figure here is computed for identical ideal elements with a "
-    "cos^q θ power pattern, fed with exact amplitudes and phases. Coupling between "
-    "neighbouring elements, the different embedded patterns of edge and interior elements "
-    "(which vary from site to site in a thinned array), the feed network, manufacturing "
-    "tolerances and failed elements are not included.",
+    "power pattern cos θ raised to the power q, fed with exact amplitudes and phases. "
+    "Coupling between neighbouring elements, the different embedded patterns of edge and "
+    "interior elements (which vary from site to site in a thinned array), the feed network, "
+    "manufacturing tolerances and failed elements are not included.",
     "Verification: use these results to choose a layout, not to certify it. Confirm the "
     "pattern, gain and sidelobe levels by a full-wave electromagnetic simulation of the "
     "actual panel and by measurement of the built hardware.",
@@ -44,7 +53,7 @@ CAUTIONS: tuple[str, ...] = (
     "the judgement of qualified, licensed engineers take precedence over this report.",
 )
 
-#: Section ids and headings, in order.
+#: Section ids and headings, in order (a section without data is left out).
 SECTIONS: tuple[tuple[str, str], ...] = (
     ("summary", "Summary"),
     ("layout", "Layout"),
@@ -56,19 +65,11 @@ SECTIONS: tuple[tuple[str, str], ...] = (
     ("comparison", "Comparison with best-of-random"),
     ("cautions", "Cautions"),
     ("provenance", "Provenance"),
+    ("spec", "Appendix: the spec"),
 )
 
-_PROVENANCE_KEYS = (
-    ("version", "thinning version"),
-    ("method", "search method"),
-    ("seed", "random seed"),
-    ("spec_digest", "spec digest"),
-    ("runtime_s", "runtime [s]"),
-    ("evaluations", "evaluations"),
-    ("date", "date"),
-)
-
-_CSS = """
+_CSS = (
+    """
 body{font-family:system-ui,-apple-system,"Segoe UI",Helvetica,Arial,sans-serif;margin:0 auto;
 max-width:1040px;padding:1.2em 1.6em;color:#1b1b1b;line-height:1.45}
 h1{font-size:1.6em;margin-bottom:.2em}h2{border-bottom:1px solid #ccc;padding-bottom:.15em;
@@ -79,35 +80,17 @@ th,td{border:1px solid #d0d0d0;padding:.25em .6em;text-align:left;vertical-align
 th{background:#f2f2f2;font-weight:600}td.num{text-align:right;font-variant-numeric:tabular-nums}
 img{max-width:100%;height:auto;display:block;margin:.6em 0;border:1px solid #eee}
 .note{color:#555;font-size:.9em}.missing{color:#777;font-style:italic}
+.warn{background:#fff4d6;border-left:4px solid #e0a000;padding:.3em .6em}
+tr.met td:last-child{color:#17692a}tr.failed td:last-child{color:#b00020}
+pre.spec{background:#f7f7f7;border:1px solid #ddd;padding:.6em;overflow:auto;font-size:.85em}
 ul.cautions li{margin-bottom:.5em}
 """
+    + SVG_CSS
+)
 
 
-# -- formatting --------------------------------------------------------------------------------
 def _e(text) -> str:
     return html.escape(str(text), quote=True)
-
-
-def _finite(x) -> bool:
-    try:
-        return x is not None and not isinstance(x, bool) and math.isfinite(float(x))
-    except (TypeError, ValueError):
-        return False
-
-
-def _num(x, digits: int = 2, unit: str = "") -> str:
-    if not _finite(x):
-        return "—"
-    s = f"{float(x):.{digits}f}".replace("-", "−")
-    return f"{s} {unit}".strip()
-
-
-def _get(obj, key, default=None):
-    if obj is None:
-        return default
-    if isinstance(obj, Mapping):
-        return obj.get(key, default)
-    return getattr(obj, key, default)
 
 
 def _img(png: bytes | None, alt: str) -> str:
@@ -117,329 +100,13 @@ def _img(png: bytes | None, alt: str) -> str:
     return f'<img src="data:image/png;base64,{data}" alt="{_e(alt)}">'
 
 
-def _row(label: str, value: str, key: str | None = None, raw=None, note: str = "") -> str:
-    attrs = ""
-    if key is not None:
-        attrs += f' data-key="{_e(key)}"'
-        if _finite(raw):
-            attrs += f' data-value="{_e(repr(float(raw)))}"'
-    cell_note = f'<td class="note">{_e(note)}</td>' if note else "<td></td>"
-    head = f'<tr><th scope="row">{_e(label)}</th>'
-    return f'{head}<td class="num"{attrs}>{_e(value)}</td>{cell_note}</tr>'
-
-
-def _pair(values, digits=2, unit="°") -> str:
-    if not isinstance(values, Sequence) or isinstance(values, str):
-        return _num(values, digits, unit)
-    return " / ".join(_num(v, digits, unit) for v in values)
-
-
-# -- sections ---------------------------------------------------------------------------------
-def _summary(m: Mapping) -> str:
-    fill = m.get("fill")
-    psl_uv = m.get("psl_uv") or [None, None]
-    at = (
-        f"at (u, v) = ({_num(psl_uv[0], 3)}, {_num(psl_uv[1], 3)}); refined on the exact pattern"
-        if _finite(psl_uv[0])
-        else "refined on the exact pattern"
-    )
-    asl, exp_asl = m.get("asl_db"), m.get("expected_asl_db")
-    diff_asl = (
-        f"{_num(float(asl) - float(exp_asl), 2, 'dB')} against random thinning"
-        if _finite(asl) and _finite(exp_asl)
-        else ""
-    )
-    glob = m.get("grating_lobes")
-    if glob is None:
-        gl = "—"
-        gl_note = ""
-    elif glob:
-        gl = "yes"
-        pts = m.get("grating_lobe_uv") or []
-        gl_note = "a grating lobe enters the visible region within the scan cone" + (
-            f", e.g. at lattice vector (u, v) = ({_num(pts[0][0], 3)}, {_num(pts[0][1], 3)})"
-            if pts and len(pts[0]) == 2
-            else ""
-        )
-    else:
-        gl = "none"
-        gl_note = "no grating lobe enters the visible region anywhere in the scan cone"
-    freq = m.get("frequency_ghz")
-    lam_mm = 299.792458 / float(freq) if _finite(freq) and float(freq) > 0 else None
-    q = m.get("element_exponent")
-    rows = [
-        _row(
-            "Candidate sites",
-            str(m.get("sites")) if m.get("sites") else "—",
-            "sites",
-            m.get("sites"),
-        ),
-        _row("Active elements", str(m.get("elements", "—")), "elements", m.get("elements")),
-        _row("Fill", _num(100 * fill, 1, "%") if _finite(fill) else "—", "fill", fill),
-        _row(
-            "Peak sidelobe level (PSL)",
-            _num(m.get("psl_db"), 2, "dB"),
-            "psl_db",
-            m.get("psl_db"),
-            f"over the scan cone, {at}",
-        ),
-        _row("Average sidelobe level (ASL)", _num(asl, 2, "dB"), "asl_db", asl, diff_asl),
-        _row(
-            "ASL expected from random thinning",
-            _num(exp_asl, 2, "dB"),
-            "expected_asl_db",
-            exp_asl,
-            "same element count on the same sites",
-        ),
-        _row(
-            "Directivity",
-            _num(m.get("directivity_dbi"), 2, "dBi"),
-            "directivity_dbi",
-            m.get("directivity_dbi"),
-            f"cos^{q:g} θ elements" if _finite(q) else "",
-        ),
-        _row(
-            "Cell-gain rule (πN on a λ/2 square lattice)",
-            _num(m.get("pi_n_dbi"), 2, "dBi"),
-            "pi_n_dbi",
-            m.get("pi_n_dbi"),
-            m.get("cell_gain_basis") or "",
-        ),
-        _row(
-            "Directivity − cell-gain rule",
-            _num(m.get("directivity_minus_pi_n_db"), 2, "dB"),
-            "directivity_minus_pi_n_db",
-            m.get("directivity_minus_pi_n_db"),
-        ),
-        _row(
-            "Half-power beamwidth, broadside",
-            _pair(m.get("hpbw_deg")),
-            "hpbw_deg",
-            None,
-            "x-z plane / y-z plane",
-        ),
-        _row(
-            "Half-power beamwidth, scan edge",
-            _pair(m.get("hpbw_scan_deg")),
-            "hpbw_scan_deg",
-            None,
-            "x-z plane / y-z plane, beam steered to θmax",
-        ),
-        _row("Grating lobes", gl, "grating_lobes", None, gl_note),
-        _row(
-            "Scan cone half-angle θmax",
-            _num(m.get("scan_max_deg"), 1, "°"),
-            "scan_max_deg",
-            m.get("scan_max_deg"),
-        ),
-        _row(
-            "Frequency",
-            _num(freq, 4, "GHz"),
-            "frequency_ghz",
-            freq,
-            f"λ = {_num(lam_mm, 3, 'mm')}" if lam_mm else "",
-        ),
-    ]
-    return (
-        '<table class="summary"><thead><tr><th>figure</th><th>value</th><th>note</th></tr>'
-        "</thead><tbody>" + "".join(rows) + "</tbody></table>"
-        '<p class="note">PSL and ASL are array-factor figures over the disc of radius '
-        "1 + sin θmax in direction cosines outside the main beam (isotropic elements); "
-        "directivity includes the element pattern.</p>"
-    )
-
-
-def _scan_table(table) -> str:
-    if table is None:
-        return ""
-    th = np.asarray(table["theta_deg"])
-    phis = np.asarray(table["phi_deg"])
-    psl = np.asarray(table["psl_db"])
-    head = "".join(f"<th>φ = {_e(f'{p:g}')}° [dB]</th>" for p in phis)
-    body = []
-    for i, t in enumerate(th):
-        cells = "".join(f'<td class="num">{_e(_num(psl[i, j], 2))}</td>' for j in range(phis.size))
-        worst = _num(np.max(psl[i]), 2)
-        body.append(
-            f'<tr><td class="num">{_e(_num(t, 1))}</td>{cells}<td class="num">{_e(worst)}</td></tr>'
-        )
-    return (
-        '<table class="scan"><thead><tr><th>θ₀ [deg]</th>' + head + "<th>worst [dB]</th></tr>"
-        "</thead><tbody>" + "".join(body) + "</tbody></table>"
-        '<p class="note">Maxima of the sampled pattern, not refined between samples: they can '
-        "read slightly below the continuous pattern. Sidelobe region: the visible disc "
-        "u² + v² ≤ 1 of the steered beam, outside its main beam.</p>"
-    )
-
-
-def _evaluations(history, provenance):
-    ev = _get(provenance, "evaluations")
-    if ev is None and history:
-        ev = history[-1].get("evaluations")
-    return ev
-
-
-def _comparison(metrics, history, baseline, provenance, png) -> str:
-    if baseline is None:
-        return '<p class="missing">Best-of-random baseline: not run.</p>'
-    rows = [
-        (
-            "design (scored)",
-            metrics.get("psl_db"),
-            metrics.get("asl_db"),
-            _evaluations(history, provenance),
-        ),
-        (
-            "best of random",
-            _get(baseline, "psl_db"),
-            _get(baseline, "asl_db"),
-            _get(baseline, "evaluations"),
-        ),
-    ]
-    body = "".join(
-        f'<tr><th scope="row">{_e(name)}</th><td class="num">{_e(_num(p, 2, "dB"))}</td>'
-        f'<td class="num">{_e(_num(a, 2, "dB"))}</td>'
-        f'<td class="num">{_e(str(n) if n is not None else "—")}</td></tr>'
-        for name, p, a, n in rows
-    )
-    d = metrics.get("psl_db")
-    b = _get(baseline, "psl_db")
-    gain = ""
-    if _finite(d) and _finite(b):
-        delta = float(b) - float(d)
-        word = "below" if delta >= 0 else "above"
-        gain = f"<p>The design's PSL is {_e(_num(abs(delta), 2, 'dB'))} {word} best-of-random.</p>"
-    return (
-        '<table class="comparison"><thead><tr><th></th><th>PSL</th><th>ASL</th>'
-        "<th>evaluations</th></tr></thead><tbody>"
-        + body
-        + "</tbody></table>"
-        + gain
-        + '<p class="note">Best-of-random figures are as that search recorded them.</p>'
-        + _img(png, "PSL and ASL of the design and best-of-random")
-    )
-
-
-def _provenance(prov: Mapping) -> str:
-    rows = []
-    seen = set()
-    for key, label in _PROVENANCE_KEYS:
-        seen.add(key)
-        val = prov.get(key)
-        if key == "runtime_s" and _finite(val):
-            text = _num(val, 2)
-        else:
-            text = "—" if val is None else str(val)
-        rows.append(
-            f'<tr><th scope="row">{_e(label)}</th><td data-key="{_e(key)}">{_e(text)}</td></tr>'
-        )
-    for key, val in prov.items():
-        if key not in seen:
-            rows.append(f'<tr><th scope="row">{_e(key)}</th><td>{_e(val)}</td></tr>')
-    return '<table class="provenance"><tbody>' + "".join(rows) + "</tbody></table>"
-
-
-def _table(rows, columns) -> str:
-    head = "".join(f"<th>{_e(label)}</th>" for _, label, _ in columns)
-    body = []
-    for r in rows:
-        cells = []
-        for key, _, fmt in columns:
-            v = r.get(key)
-            if isinstance(v, bool):
-                cells.append(f"<td>{'yes' if v else 'no'}</td>")
-            elif fmt and _finite(v):
-                cells.append(f'<td class="num">{_e(format(float(v), fmt).replace("-", "−"))}</td>')
-            else:
-                cells.append(f"<td>{_e('—' if v is None else v)}</td>")
-        body.append("<tr>" + "".join(cells) + "</tr>")
-    return f'<table class="grid"><tr>{head}</tr>{"".join(body)}</table>'
-
-
-def _stress(stress) -> str:
-    """The scan, band-edge and Monte Carlo tables of
-    :func:`thinning.analysis.stress.stress_layout`."""
-    if stress is None:
-        return '<p class="missing">Not run (give the error model to analyse the built array).</p>'
-    parts = [
-        "<h3>Scanned beams (phase steering at the design frequency)</h3>",
-        _table(
-            stress["scan"],
-            [
-                ("theta_deg", "θ₀ [°]", ".1f"),
-                ("phi_deg", "φ₀ [°]", ".0f"),
-                ("psl_db", "PSL [dB]", ".2f"),
-                ("gain_dbi", "gain [dBi]", ".2f"),
-                ("scan_loss_db", "scan loss [dB]", ".2f"),
-                ("hpbw_deg", "HPBW [°]", ".3f"),
-                ("hpbw_broadening", "broadening", ".4f"),
-                ("cos_law", "1/cos θ₀", ".4f"),
-            ],
-        ),
-        '<p class="note">Gain includes the element pattern (cos θ₀ scan loss for q = 1); '
-        "the beamwidth broadens about as 1/cos θ₀.</p>",
-    ]
-    if stress.get("band"):
-        parts += [
-            f"<h3>Band edges ({_e(stress['band'][0]['steering'])} steering)</h3>",
-            _table(
-                stress["band"],
-                [
-                    ("frequency_ghz", "f [GHz]", ".4f"),
-                    ("theta_command_deg", "commanded θ [°]", ".2f"),
-                    ("theta_beam_deg", "beam θ [°]", ".2f"),
-                    ("squint_deg", "squint [°]", ".2f"),
-                    ("psl_db", "PSL [dB]", ".2f"),
-                    ("grating_lobe", "grating lobe", None),
-                ],
-            ),
-        ]
-    mc = stress.get("monte_carlo")
-    if mc:
-        mo = mc["model"]
-        parts += [
-            f"<h3>Random errors, {mc['trials']} trials</h3>",
-            f"<p>Amplitude {_num(mo['amplitude_error_db'])} dB rms, phase "
-            f"{_num(mo['phase_error_deg'], 1)}° rms, "
-            f"{_e(mo['phase_bits'] or 'continuous')} phase bits, {_e(mo['failures'])} failed "
-            "elements.</p>",
-            _table(
-                [
-                    {
-                        "what": "PSL [dB]",
-                        "nominal": stress["psl_db"]["nominal"],
-                        "median": stress["psl_db"]["median"],
-                        "p90": stress["psl_db"]["p90"],
-                        "floor": None,
-                    },
-                    {
-                        "what": "ASL [dB]",
-                        "nominal": stress["asl_db"]["nominal"],
-                        "median": stress["asl_db"]["mean"],
-                        "p90": None,
-                        "floor": stress["expected_asl_db"],
-                    },
-                ],
-                [
-                    ("what", "", None),
-                    ("nominal", "nominal", ".2f"),
-                    ("median", "median PSL / mean ASL", ".2f"),
-                    ("p90", "90th percentile", ".2f"),
-                    ("floor", "nominal + published floor", ".2f"),
-                ],
-            ),
-            '<p class="note">Floor: ASL ≈ [(1 − P) + δ² + P(φ² + π²/(3·2^{2B}))]/(P·η·N) '
-            "(references.md rows 11–12).</p>",
-        ]
-    return "".join(parts)
-
-
 def build_report(
     path,
     *,
     metrics: Mapping,
     layout: Layout | None = None,
     layout_png: bytes | None = None,
+    layout_svg: str | None = None,
     figures: Mapping[str, bytes] | None = None,
     history=None,
     baseline=None,
@@ -448,6 +115,9 @@ def build_report(
     title: str = "Thinned array design report",
     scan_table: dict | None = None,
     stress: dict | None = None,
+    spec=None,
+    requirements: Mapping | None = None,
+    notes: Mapping[str, str] | None = None,
 ) -> Path:
     """Write the report as one self-contained HTML file.
 
@@ -456,28 +126,41 @@ def build_report(
     path : str or os.PathLike
         The HTML file; its folder must exist.
     metrics : dict
-        Figures of the layout, as :meth:`thinning.analysis.score.ScoreResult.to_dict` gives them.
+        Figures of the layout, as :meth:`thinning.analysis.score.ScoreResult.to_dict` gives them
+        (a design's ``layout.json`` adds the constraint counts).
     layout : Layout, optional
         Only used to fill in the element count when ``metrics`` lacks it.
+    layout_svg : str, optional
+        The drawing as an ``<svg>`` element (:func:`thinning.outputs.svg_drawing.layout_svg`);
+        shown with zoom buttons and an element-id switch.
     layout_png : bytes, optional
-        PNG drawing of the layout.
+        A PNG drawing, used when there is no SVG.
     figures : dict of str to bytes
         PNG images under the keys ``uv_map``, ``cuts``, ``scan_psl``, ``convergence`` and
-        ``comparison``; a missing one is reported as not available.
+        ``comparison``.
     history : list of dict, optional
-        Convergence records of the search (``evaluations``, ``best_psl_db``, …).
+        Convergence records of the search; without it the convergence section is left out.
     baseline : SearchResult or dict, optional
-        Best-of-random run: ``psl_db``, ``asl_db`` [dB], ``evaluations``, ``history``;
-        None prints "not run".
+        Best-of-random run: ``psl_db``, ``asl_db`` [dB], ``evaluations``; without it the
+        comparison section is left out.
     provenance : dict, optional
-        ``version``, ``method``, ``seed``, ``spec_digest``, ``runtime_s``, ``evaluations``,
-        ``date``, and any further keys; the version and date are filled in when missing.
+        ``version``, ``method``, ``seed``, ``spec_file``, ``spec_digest``, ``runtime_s``,
+        ``evaluations``, ``stopped_by``, ``deterministic``, ``date``, and any further keys;
+        the version and date are filled in when missing.
     cautions : sequence of str
     title : str
     scan_table : dict, optional
         From :func:`thinning.outputs.figures.scan_psl_table`.
     stress : dict, optional
-        From :func:`thinning.analysis.stress.stress_layout`; None prints "not run".
+        From :func:`thinning.analysis.stress.stress_layout`; without it the section is left
+        out.
+    spec : thinning.spec.Spec, optional
+        Its name and description head the summary, its constraints are listed, and its text
+        is the appendix.
+    requirements : dict, optional
+        Verdicts of :func:`thinning.analysis.requirements.judge`, shown first.
+    notes : dict of str to str, optional
+        Plain-text notes under the figures: ``pattern`` (where the PSL is).
 
     Returns
     -------
@@ -492,6 +175,7 @@ def build_report(
 
     path = Path(path)
     figures = dict(figures or {})
+    notes = dict(notes or {})
     m = dict(metrics)
     if "elements" not in m and layout is not None:
         m["elements"] = len(layout)
@@ -503,30 +187,58 @@ def build_report(
     if prov.get("evaluations") is None and history:
         prov["evaluations"] = history[-1].get("evaluations")
 
-    conv = (
-        _img(figures.get("convergence"), "Best PSL against evaluations")
-        if history or figures.get("convergence")
-        else '<p class="missing">No search history: the layout was scored, not searched.</p>'
+    lead = ""
+    if spec is not None:
+        name = str(spec.raw.get("name") or Path(spec.source).stem)
+        desc = spec.raw.get("description")
+        lead = f"<p><b>{_e(name)}</b>" + (f": {_e(desc)}" if desc else "") + "</p>"
+    if requirements is not None:
+        lead += "<h3>Requirements</h3>" + rs.requirements_html(requirements)
+    lead += rs.run_html(prov)
+    lead += rs.constraints_html(spec, m)
+    kind = spec.lattice.kind if spec is not None else None
+    drawing = (
+        svg_controls(layout_svg)
+        + f'<p class="note">{_e(notes.get("layout", ""))} Vector drawing in millimetres: zoom '
+        "with the buttons (or the browser), hover an element for its id and position, or "
+        "show every id.</p>"
+        if layout_svg
+        else _img(layout_png, "Drawing of the layout")
     )
+    pattern_note = notes.get("pattern", "")
     body = {
-        "summary": _summary(m),
-        "layout": _img(layout_png, "Drawing of the layout"),
+        "summary": lead + "<h3>Figures of merit</h3>" + rs.summary_html(m, kind),
+        "layout": drawing,
         "pattern": _img(figures.get("uv_map"), "Array factor in u-v")
-        + '<p class="note">Broadside beam. Steering the beam to (u₀, v₀) moves this map by '
-        "(u₀, v₀); the sidelobes of every beam in the cone therefore lie inside the outer "
-        "circle.</p>",
-        "cuts": _img(figures.get("cuts"), "Principal-plane cuts"),
+        + (f"<p>{_e(pattern_note)}</p>" if pattern_note else "")
+        + '<p class="note">Broadside beam; the cross marks the highest sidelobe (and its '
+        "repeats on a lattice). Steering the beam to (u₀, v₀) moves the visible circle by "
+        "(u₀, v₀) over this map; the sidelobes of every beam in the cone therefore lie "
+        "inside the outer circle.</p>",
+        "cuts": _img(figures.get("cuts"), "Principal-plane cuts")
+        + '<p class="note">The broadside pattern against the observation angle θ. The arrow '
+        "above marks the steering range ±θmax, where the beam peak can be put; it is not a "
+        "range of observation angles: a steered beam moves its whole pattern by sin θ₀ in "
+        "direction cosines, so its sidelobes fall anywhere in the visible region.</p>",
         "scan": _img(figures.get("scan_psl"), "Worst sidelobe against scan angle")
-        + _scan_table(scan_table),
-        "stress": _stress(stress),
-        "convergence": conv,
-        "comparison": _comparison(m, history, baseline, prov, figures.get("comparison")),
+        + rs.scan_html(scan_table, m.get("psl_db")),
+        "stress": rs.stress_html(stress),
+        "convergence": _img(figures.get("convergence"), "Best PSL against evaluations")
+        if history
+        else "",
+        "comparison": rs.comparison_html(
+            m, prov.get("evaluations"), baseline, _img(figures.get("comparison"), "comparison")
+        ),
         "cautions": '<ul class="cautions">'
         + "".join(f"<li>{_e(c)}</li>" for c in cautions)
         + "</ul>",
-        "provenance": _provenance(prov),
+        "provenance": rs.provenance_html(prov),
+        "spec": ""
+        if spec is None or not getattr(spec, "text", "")
+        else rs.spec_appendix_html(Path(spec.source).name, spec.text, spec.digest),
     }
-    nav = "".join(f'<a href="#{sid}">{_e(head)}</a>' for sid, head in SECTIONS)
+    shown = [(sid, head) for sid, head in SECTIONS if body[sid]]
+    nav = "".join(f'<a href="#{sid}">{_e(head)}</a>' for sid, head in shown)
     parts = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
@@ -537,7 +249,7 @@ def build_report(
         "</p></header>",
         f"<nav>{nav}</nav>",
     ]
-    for sid, head in SECTIONS:
+    for sid, head in shown:
         parts.append(f'<section><h2 id="{sid}">{_e(head)}</h2>{body[sid]}</section>')
     parts.append("</body></html>\n")
     atomic_write(path, "\n".join(parts))
@@ -560,6 +272,9 @@ def report_for_layout(
     title: str = "Thinned array design report",
     metrics: Mapping | None = None,
     stress: dict | None = None,
+    spec=None,
+    requirements: Mapping | None = None,
+    footprint_mm: float | None = None,
 ) -> Path:
     """Score a layout, draw every figure and write the HTML report.
 
@@ -574,14 +289,17 @@ def report_for_layout(
     aperture : thinning.geometry.aperture.Aperture, optional   drawn with the layout
     sites : (M, 2) array, optional  [m]
         Every candidate site: the filled aperture in the cuts, the empty sites in the drawing,
-        and M for the fill and the random-thinning expectation.
+        and the fill and the random-thinning expectation.
     history : list of dict, optional   convergence records of the search
     baseline : SearchResult or dict, optional   best-of-random run
     provenance : dict, optional
-    layout_png : bytes, optional   a drawing to use instead of the built-in one
+    layout_png : bytes, optional   a PNG drawing to show instead of the inline SVG one
     title : str
     metrics : dict, optional   the layout's figures if already computed (else scored here)
     stress : dict, optional    :func:`thinning.analysis.stress.stress_layout` output
+    spec : thinning.spec.Spec, optional   name, description, constraints, the appendix
+    requirements : dict, optional   verdicts (:func:`thinning.analysis.requirements.judge`)
+    footprint_mm : float, optional  [mm]   element diameter in the drawing
 
     Returns
     -------
@@ -595,6 +313,7 @@ def report_for_layout(
     from ..analysis.score import score_layout
     from ..units import wavelength as _wavelength
     from . import figures as fg
+    from .svg_drawing import layout_svg
 
     path = Path(path)
     if not path.parent.is_dir():
@@ -604,34 +323,41 @@ def report_for_layout(
     if sites is not None:
         site_xy = np.asarray(sites, dtype=float).reshape(-1, 2)
     if metrics is None:
-        metrics = score_layout(
-            layout, frequency_hz, scan_max, q, sites=len(site_xy) if site_xy is not None else None
-        ).to_dict()
+        metrics = score_layout(layout, frequency_hz, scan_max, q, sites=site_xy).to_dict()
     metrics = dict(metrics)
+    where = _psl_where(metrics, lam, scan_max)
     # a little beyond the sidelobe disc, so that its edge shows on the map
     uv = fg.uv_power_map(layout, lam, 1.04 * (1.0 + math.sin(scan_max)), scan_max=scan_max)
     table = fg.scan_psl_table(layout, lam, scan_max, uv_map=uv)
     filled = Layout(site_xy[:, 0], site_xy[:, 1]) if site_xy is not None and len(site_xy) else None
-    base_hist = _get(baseline, "history")
     figs = {
-        "uv_map": fg.fig_uv_map(layout, lam, scan_max, uv_map=uv, psl_db=metrics["psl_db"]),
+        "uv_map": fg.fig_uv_map(
+            layout,
+            lam,
+            scan_max,
+            uv_map=uv,
+            psl_db=metrics["psl_db"],
+            marks=None if where is None else where["aliases"],
+        ),
         "cuts": fg.fig_principal_cuts(layout, lam, scan_max, filled),
         "scan_psl": fg.fig_scan_psl(table, metrics["psl_db"]),
     }
     if history:
-        figs["convergence"] = fg.fig_convergence(history, base_hist)
+        figs["convergence"] = fg.fig_convergence(history, rs._get(baseline, "history"))
     if baseline is not None:
         figs["comparison"] = fg.fig_comparison(
-            metrics, {"psl_db": _get(baseline, "psl_db"), "asl_db": _get(baseline, "asl_db")}
+            metrics, {"psl_db": rs._get(baseline, "psl_db"), "asl_db": rs._get(baseline, "asl_db")}
         )
+    svg = None
     if layout_png is None:
-        layout_png = fg.png_bytes(fg.fig_layout(layout, aperture, site_xy))
+        svg = layout_svg(layout, aperture, site_xy, footprint_mm, title)
     pngs = {k: fg.png_bytes(f) for k, f in figs.items()}
     return build_report(
         path,
         metrics=metrics,
         layout=layout,
         layout_png=layout_png,
+        layout_svg=svg,
         figures=pngs,
         history=history,
         baseline=baseline,
@@ -639,4 +365,34 @@ def report_for_layout(
         title=title,
         scan_table=table,
         stress=stress,
+        spec=spec,
+        requirements=requirements,
+        notes={
+            "pattern": "" if where is None else where["text"],
+            "layout": _dims(layout, aperture),
+        },
     )
+
+
+def _dims(layout, aperture) -> str:
+    """The overall dimensions in words."""
+    from .svg_drawing import overall_dimensions
+
+    d = overall_dimensions(layout, aperture)
+    ex, ey = d["elements"]
+    text = f"Element centres span {ex:.1f} × {ey:.1f} mm (x × y, centre to centre)."
+    if d["panel"] is not None:
+        text = f"Panel {d['panel'][0]:.1f} × {d['panel'][1]:.1f} mm overall (outline). " + text
+    return text
+
+
+def _psl_where(metrics: Mapping, wavelength: float, scan_max: float) -> dict | None:
+    """:func:`report_sections.psl_location` of the scored PSL (None without its place)."""
+    uv = metrics.get("psl_uv") or [None, None]
+    if not all(rs._finite(c) for c in uv):
+        return None
+    lat = metrics.get("lattice") or {}
+    basis = lat.get("basis_mm")
+    if basis is None and lat.get("kind") == "linear" and lat.get("step_mm"):
+        basis = [[lat["step_mm"], 0.0], [0.0, 0.0]]
+    return rs.psl_location(uv, basis, wavelength * 1e3, math.degrees(scan_max))

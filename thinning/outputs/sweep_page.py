@@ -1,10 +1,10 @@
 """The sweep's trade page: sweep.png and the self-contained sweep.html.
 
 The figure plots the design's PSL and ASL against the element count with the theory curves of
-:func:`thinning.analysis.sweep.theory_curves` (random-thinning expectation, Steinberg's median
-peak, the filled aperture's PSL) and the directivity against the cell-gain rule; the page adds
-the answer (the smallest budget that meets the requirement), the table of budgets, the
-cautions and the provenance.
+:func:`thinning.analysis.sweep.theory_curves` (random-thinning expectation of the ASL, median
+PSL of random thinning with the filled aperture's own sidelobes, the filled aperture's PSL) and
+the directivity against the cell-gain rule; the page adds the answer (the smallest budget that
+meets the requirements), the table of budgets, the cautions and the provenance.
 """
 
 from __future__ import annotations
@@ -14,10 +14,11 @@ from pathlib import Path
 
 import numpy as np
 
+from ..analysis.requirements import describe
 from ..analysis.sweep import SWEEP_COLUMNS, SweepResult, theory_curves
 from ..io.atomic import atomic_write
 
-__all__ = ["sweep_figure", "write_sweep_outputs"]
+__all__ = ["sweep_figure", "write_sweep_outputs", "answer_text"]
 
 
 def sweep_figure(res: SweepResult):
@@ -27,27 +28,25 @@ def sweep_figure(res: SweepResult):
 
     th = theory_curves(res)
     n = np.array([r["elements"] for r in res.rows])
-    fig = Figure(figsize=(11.0, 4.6))
+    fig = Figure(figsize=(11.0, 5.2))
     FigureCanvasAgg(fig)
     a, b = fig.subplots(1, 2)
     a.plot(n, [r["psl_db"] for r in res.rows], "o-", color="C3", label="PSL, this search")
     a.plot(n, [r["asl_db"] for r in res.rows], "s-", color="C0", label="ASL, this search")
-    a.plot(
-        th["elements"],
-        th["steinberg_median_psl_db"],
-        "--",
-        color="C3",
-        alpha=0.7,
-        label="median PSL of random thinning (Steinberg)",
+    theory = (
+        (
+            "random_median_psl_db",
+            "--",
+            "C3",
+            0.8,
+            1.5,
+            "median PSL of random thinning (filled-aperture sidelobes + random part)",
+        ),
+        ("steinberg_median_psl_db", ":", "C3", 0.6, 1.0, "its random part alone (Steinberg)"),
+        ("expected_asl_db", "--", "C0", 0.7, 1.5, "expected ASL of random thinning"),
     )
-    a.plot(
-        th["elements"],
-        th["expected_asl_db"],
-        "--",
-        color="C0",
-        alpha=0.7,
-        label="expected ASL of random thinning",
-    )
+    for key, ls, colour, alpha, lw, label in theory:
+        a.plot(th["elements"], th[key], ls, color=colour, alpha=alpha, lw=lw, label=label)
     a.axhline(
         res.filled["psl_db"],
         color="0.4",
@@ -55,13 +54,16 @@ def sweep_figure(res: SweepResult):
         ls=":",
         label=f"filled aperture PSL ({res.filled['elements']} sites)",
     )
-    if res.requirement is not None:
-        a.axhline(res.requirement, color="k", lw=1.2, label=f"requirement {res.requirement:g} dB")
+    for key, style in (("psl_db", "-"), ("asl_db", "-.")):
+        if key in (res.requirements or {}):
+            v = res.requirements[key]
+            a.axhline(v, color="k", lw=1.2, ls=style, label=f"requirement {describe(key, v)}")
     a.set_xlabel("active elements N")
     a.set_ylabel("level relative to the main beam [dB]")
     a.set_title("Sidelobes against element count")
     a.grid(alpha=0.3)
-    a.legend(fontsize=7, loc="best")
+    handles, labels = a.get_legend_handles_labels()
+    fig.legend(handles, labels, fontsize=7.5, loc="lower center", ncols=3, frameon=False)
     b.plot(n, [r["directivity_dbi"] for r in res.rows], "o-", color="C2", label="directivity")
     b.plot(
         th["elements"],
@@ -76,19 +78,42 @@ def sweep_figure(res: SweepResult):
     b.set_title("Directivity against element count")
     b.grid(alpha=0.3)
     b.legend(fontsize=8)
-    fig.tight_layout()
+    fig.tight_layout(rect=(0, 0.12, 1, 1))
     return fig
 
 
-def write_sweep_outputs(res: SweepResult) -> list[Path]:
-    """sweep.png and the self-contained sweep.html."""
+def answer_text(res: SweepResult, plain: bool = False) -> str:
+    """The sweep's answer: the smallest budget tried that meets every requirement.
+
+    When that is the smallest budget tried, a smaller one may meet them too: said so.
+    """
+    reqs = res.requirements or {}
+    if not reqs:
+        return "No requirement in the spec ([requirements] psl_db, asl_db)."
+    what = " and ".join(describe(k, v, plain) for k, v in reqs.items())
+    s = res.smallest_meeting
+    if s is None:
+        return f"No budget in this sweep meets {what}."
+    tried = min(r["elements"] for r in res.rows)
+    text = (
+        f"smallest budget tried that meets {what}: {s['elements']} elements "
+        f"(PSL {s['psl_db']:.2f} dB, ASL {s['asl_db']:.2f} dB)"
+    )
+    if s["elements"] == tried:
+        text += "; it is the smallest budget tried, so a smaller one may meet it too"
+    return text
+
+
+def write_sweep_outputs(res: SweepResult, folder: Path | None = None) -> list[Path]:
+    """sweep.png and the self-contained sweep.html, into ``folder`` (default the sweep's)."""
     import base64
     import html
 
+    folder = res.folder if folder is None else Path(folder)
     buf = io.BytesIO()
     sweep_figure(res).savefig(buf, format="png", dpi=110)
     png = buf.getvalue()
-    files = [res.folder / "sweep.png", res.folder / "sweep.html"]
+    files = [folder / "sweep.png", folder / "sweep.html"]
     atomic_write(files[0], png)
     e = html.escape
     cols = [c for c in SWEEP_COLUMNS if c not in ("folder", "stopped_by")]
@@ -96,17 +121,11 @@ def write_sweep_outputs(res: SweepResult) -> list[Path]:
     body = "".join(
         "<tr>" + "".join(f"<td>{e(str(r[c]))}</td>" for c in cols) + "</tr>" for r in res.rows
     )
-    if res.requirement is None:
-        answer = "No PSL requirement in the spec ([requirements] psl_db)."
-    elif res.smallest_meeting is None:
-        answer = f"No budget in this sweep meets PSL ≤ {res.requirement:g} dB."
-    else:
-        s = res.smallest_meeting
-        answer = (
-            f"The smallest budget in this sweep that meets PSL ≤ {res.requirement:g} dB is "
-            f"<b>{s['elements']} elements</b> (PSL {s['psl_db']:.2f} dB); its layout is in "
-            f"<code>{e(s['folder'])}/layout.csv</code>."
-        )
+    answer = e(answer_text(res))
+    answer = answer[0].upper() + answer[1:] + "."
+    if res.smallest_meeting is not None:
+        folder = e(res.smallest_meeting["folder"])
+        answer += f" Its layout is in the sub-folder <code>{folder}</code>."
     from ..outputs.report import CAUTIONS
 
     b64 = base64.b64encode(png).decode()
@@ -119,8 +138,10 @@ margin:auto;padding:1em}}table{{border-collapse:collapse;font-size:.85em}}td,th{
 <h2 id="answer">Answer</h2><p>{answer}</p>
 <h2 id="figure">Trade</h2><img alt="sweep" src="data:image/png;base64,{b64}">
 <p>Theory: expected ASL of random thinning N of M = {res.sites} sites (with the filled aperture's
-own sidelobes); Steinberg's median peak of random arrays with n_s ≈ {res.independent_samples:.0f}
-independent sidelobe samples; the filled aperture's PSL; the cell-gain rule.</p>
+own sidelobes); median PSL of random thinning: the filled aperture's own pattern plus the random
+part, whose peak over n_s ≈ {res.independent_samples:.0f} independent sidelobe samples follows
+Steinberg's form (near full fill the curve meets the filled aperture's PSL); the random part
+alone; the filled aperture's PSL; the cell-gain rule.</p>
 <h2 id="table">Budgets</h2><table><tr>{head}</tr>{body}</table>
 <h2 id="cautions">Cautions</h2><ul>{"".join(f"<li>{e(c)}</li>" for c in CAUTIONS)}</ul>
 <h2 id="provenance">Provenance</h2><p>method {e(res.spec.method)}, seed {res.spec.seed}, spec

@@ -18,9 +18,11 @@ short by the time limit or by Ctrl-C still has a result.
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
 import signal
+import threading
 import time
 from dataclasses import dataclass, field
 
@@ -28,9 +30,31 @@ import numpy as np
 
 from .problem import BATCH, Evaluation
 
-__all__ = ["METHODS", "SearchResult", "Tracker", "run_method", "method_module"]
+__all__ = [
+    "METHODS",
+    "SPEED_DEPENDENT_STOPS",
+    "COMPILE_NOTE",
+    "SearchResult",
+    "Tracker",
+    "run_method",
+    "method_module",
+]
 
 METHODS = ("random", "density", "genetic", "ift")
+
+#: Reasons to stop that depend on the machine's speed (wall time, a Ctrl-C): a run that ends
+#: by any other (its evaluation budget, a stall, its generations or trials) is reproducible.
+SPEED_DEPENDENT_STOPS = frozenset({"time", "interrupt"})
+
+#: What the progress says while the first call of an evaluation kind compiles the kernels.
+COMPILE_NOTE = "compiling the search kernels, once after install (about 10-20 s)"
+_COMPILE_NOTES = {
+    "evaluate": COMPILE_NOTE,
+    "swaps": "compiling the swap-move kernels, once after install (about 5 s)",
+}
+
+#: A first evaluation call still running after this long is compiling  [s].
+_COMPILE_NOTE_AFTER_S = 1.5
 
 
 # -- worker processes ------------------------------------------------------------------------
@@ -131,6 +155,11 @@ class SearchResult:
     stopped_by: str
     history: list = field(default_factory=list)
 
+    @property
+    def deterministic(self) -> bool:
+        """True when the run ended by a rule that does not depend on machine speed."""
+        return self.stopped_by not in SPEED_DEPENDENT_STOPS
+
 
 class Tracker:
     """Counts evaluations, keeps the best genome, enforces limits, reports progress.
@@ -165,6 +194,8 @@ class Tracker:
         self.history: list[dict] = []
         self.start = time.perf_counter()
         self._last_report = -np.inf
+        self._first_calls: set[str] = set()  # evaluation kinds already called once
+        self._setup_s = 0.0  # time spent in those first calls (compiling), not in the rate
         self._pool = None
         if self.workers > 1:
             # this process is one of the workers: the pool holds the other workers − 1
@@ -207,8 +238,41 @@ class Tracker:
         return self.stop_reason() is not None
 
     # -- evaluation -----------------------------------------------------------------------
+    @contextlib.contextmanager
+    def _first_call(self, kind: str):
+        """Time the first call of an evaluation kind, which compiles (or loads) the compiled
+        kernels: the progress says so when it takes long, and the rate leaves it out."""
+        if kind in self._first_calls:
+            yield
+            return
+        self._first_calls.add(kind)
+        timer = None
+        if self.progress is not None:
+            timer = threading.Timer(_COMPILE_NOTE_AFTER_S, self._compile_note, (kind,))
+            timer.daemon = True
+            timer.start()
+        t = time.perf_counter()
+        try:
+            yield
+        finally:
+            if timer is not None:
+                timer.cancel()
+            self._setup_s += time.perf_counter() - t
+
+    def _compile_note(self, kind):
+        try:
+            self.progress({**self._progress_figures(), "note": _COMPILE_NOTES[kind]})
+        except Exception:  # a progress printer must never break the search  # noqa: BLE001
+            pass
+
     def evaluate(self, genomes) -> Evaluation:
         """Evaluate genomes (B, G); counts them and keeps the best."""
+        with self._first_call("evaluate"):
+            ev = self._evaluate(genomes)
+        self._account(np.atleast_2d(np.asarray(genomes, dtype=bool)), ev)
+        return ev
+
+    def _evaluate(self, genomes) -> Evaluation:
         g = np.atleast_2d(np.asarray(genomes, dtype=bool))
         if self._pool is not None and g.shape[0] > BATCH:
             # chunks of BATCH genomes: this process evaluates every workers-th chunk itself;
@@ -228,11 +292,8 @@ class Tracker:
                     parts[i] = part
             psl = np.concatenate([parts[i][0] for i in range(len(chunks))])
             asl = np.concatenate([parts[i][1] for i in range(len(chunks))])
-            ev = Evaluation(self.problem.combine(psl, asl), psl, asl)
-        else:
-            ev = self.problem.evaluate(g)
-        self._account(g, ev)
-        return ev
+            return Evaluation(self.problem.combine(psl, asl), psl, asl)
+        return self.problem.evaluate(g)
 
     def evaluate_swaps(self, base, off_genes, on_genes, genomes=None) -> Evaluation:
         """Evaluate K swap moves of ``base`` (gene ``off_genes[k]`` off, ``on_genes[k]`` on)
@@ -241,7 +302,8 @@ class Tracker:
         base = np.asarray(base, dtype=bool)
         if genomes is None:
             genomes = self.problem.swapped(base, off_genes, on_genes)
-        ev = self.problem.evaluate_swaps(base, off_genes, on_genes)
+        with self._first_call("swaps"):
+            ev = self.problem.evaluate_swaps(base, off_genes, on_genes)
         self._account(np.asarray(genomes, dtype=bool), ev)
         return ev
 
@@ -274,23 +336,27 @@ class Tracker:
         if not force and now - self._last_report < self.progress_every_s:
             return
         self._last_report = now
-        rate = self.evaluations / now if now > 0 else 0.0
+        self.progress(self._progress_figures())
+
+    def _progress_figures(self) -> dict:
+        """Evaluations, rate (the compiling first calls left out) and time left."""
+        now = self.elapsed
+        busy = now - self._setup_s
+        rate = self.evaluations / busy if busy > 0 else 0.0
         left = None
         if self.time_limit_s is not None:
             left = max(0.0, self.time_limit_s - now)
         if self.max_evaluations is not None and rate > 0:
             by_evals = self.remaining / rate
             left = by_evals if left is None else min(left, by_evals)
-        self.progress(
-            {
-                "evaluations": self.evaluations,
-                "seconds": now,
-                "rate": rate,
-                "best_psl_db": self.best[1],
-                "best_asl_db": self.best[2],
-                "seconds_left": left,
-            }
-        )
+        return {
+            "evaluations": self.evaluations,
+            "seconds": now,
+            "rate": rate,
+            "best_psl_db": self.best[1],
+            "best_asl_db": self.best[2],
+            "seconds_left": left,
+        }
 
     def result(self, stopped_by: str) -> SearchResult:
         self._maybe_report(force=True)
