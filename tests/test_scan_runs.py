@@ -8,7 +8,6 @@ import json
 import math
 
 import pytest
-
 from helpers import run_cli, small_spec, write_spec
 
 SECTOR = """
@@ -81,6 +80,9 @@ def test_score_with_the_spec_gives_the_design_figures(sector_run, capsys):
     for key in ("psl_db", "asl_db", "hpbw_widest_deg", "gain_dbi", "directivity_dbi"):
         assert r[key] == pytest.approx(meta[key], abs=1e-6)
     assert r["mask"]["margin_db"] == pytest.approx(meta["mask"]["margin_db"], abs=1e-6)
+    assert r["requirements"] == meta["requirements"]  # the verdicts too
+    code, out, err = run_cli(capsys, "score", tmp / "out" / "layout.csv", "--spec", spec)
+    assert "the sidelobe mask by" in out and "HPBW <= 30 deg by" in out
 
 
 def test_stress_with_the_spec_judges_the_same_requirement(sector_run, capsys):

@@ -70,6 +70,11 @@ def format_table(r: dict) -> str:
     if r.get("gain_dbi") is not None:
         rows.append(("gain (embedded pattern)", f"{num(r['gain_dbi'], '.2f')} dBi"))
         rows.append(("largest scan loss", f"{num(r['scan_loss_max_db'], '.2f')} dB"))
+    if r.get("requirements"):
+        from ..analysis.requirements import verdict_phrase
+
+        for key, v in r["requirements"].items():
+            rows.append(("requirement", verdict_phrase(key, v, plain=True)))
     w = max(len(k) for k, _ in rows)
     lines = [f"{k:<{w}}  {v}" for k, v in rows]
     lines.append(
@@ -240,6 +245,10 @@ def score(
         ).to_dict()
     finally:
         progress.close()
+    if spec is not None and spec.requirements:
+        from ..analysis.requirements import judge
+
+        result["requirements"] = judge(spec.requirements, result)
     if as_json:
         click.echo(json.dumps(result, allow_nan=False))
     else:

@@ -348,10 +348,11 @@ def report_for_layout(
     # the cone's beams (a sector's are in the built-array section)
     table = None if coverage is not None else fg.scan_psl_table(layout, lam, scan_max, uv_map=uv)
     filled = Layout(site_xy[:, 0], site_xy[:, 1]) if site_xy is not None and len(site_xy) else None
+    sector = coverage is not None and coverage.scan.kind == "sector"
     uv_fig = fg.fig_uv_map(
         layout,
         lam,
-        scan_max,
+        0.0 if sector else scan_max,  # a sector's region is drawn, not its enclosing cone
         uv_map=uv,
         psl_db=metrics["psl_db"],
         marks=None if where is None else where["aliases"],
