@@ -21,7 +21,9 @@ The example's rows are 19 mm apart: fine for its 20° of elevation scan, not for
 enclosing cone, which lets grating lobes in. A second pair of runs puts the same panel and
 budget on an 18 mm equilateral triangular lattice, free of grating lobes over the whole cone
 at the band's top, to show what the sector, band and mask are worth when the lattice does
-not decide it.
+not decide it. Last, the cost of one evaluation (a batch of 128 layouts, the best of 15
+rounds taken in turn): the PSL over the cone, the worst excess over the mask over the
+sector and band, and that with the beamwidth penalty.
 Usage: ``python benchmarks/bench_requirements.py [--evaluations N] [--seed S] [--only 1|2]
 [--json FILE]``.
 """
@@ -40,6 +42,8 @@ import math
 import platform
 import time
 from pathlib import Path
+
+import numpy as np
 
 from thinning.analysis.requirements import judge
 from thinning.analysis.score import score_layout
@@ -71,6 +75,43 @@ def triangular_variant(spec):
     raw["array"]["element_pattern"] = str(SPEC.parent / raw["array"]["element_pattern"])
     out = parse_spec(raw, spec.source, spec.digest)
     out.text = spec.text
+    return out
+
+
+def evaluation_cost(spec, batch=128, rounds=15):
+    """Milliseconds per layout of the problem's evaluation: plain cone, mask, + HPBW."""
+    from thinning.search.problem import ThinningProblem
+
+    sites = spec.sites()
+    n = spec.elements(len(sites))
+
+    def build(**kw):
+        return ThinningProblem(sites, n, spec.wavelength, spec.scan_max, **kw)
+
+    problems = {
+        "PSL over the enclosing cone": build(),
+        "worst excess over the mask, sector and band": build(
+            coverage=spec.coverage, limits=spec.limits(n)
+        ),
+        "the same with the beamwidth penalty": build(
+            coverage=spec.coverage, limits=spec.limits(n), hpbw_max=spec.hpbw_max
+        ),
+    }
+    genomes = next(iter(problems.values())).random_genomes(np.random.default_rng(0), batch)
+    for p in problems.values():
+        p.evaluate(genomes[:16])  # compile or load the kernels, build the tables
+    best = dict.fromkeys(problems, math.inf)
+    for _ in range(rounds):
+        for name, p in problems.items():
+            t = time.perf_counter()
+            p.evaluate(genomes)
+            best[name] = min(best[name], time.perf_counter() - t)
+    print(f"\none evaluation, {len(sites)} sites, best of {rounds} rounds of {batch} layouts:")
+    base = best["PSL over the enclosing cone"]
+    out = {}
+    for name, t in best.items():
+        out[name] = round(t / batch * 1e3, 4)
+        print(f"  {name:<46} {out[name]:.3f} ms per layout ({t / base:.2f}×)")
     return out
 
 
@@ -131,6 +172,7 @@ def main():
         if args.only not in (None, key):
             continue
         results[title] = compare(title, full, args)
+    results["evaluation_ms"] = evaluation_cost(example)
     if args.json:
         path = Path(args.json)
         data = json.loads(path.read_text()) if path.exists() else {}

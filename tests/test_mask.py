@@ -321,3 +321,28 @@ def test_linear_array_requirement_verdicts(tmp_path, capsys):
     line = out.splitlines()[0]
     word = "meets" if req["mask"]["met"] else "fails"
     assert f"{word} the sidelobe mask by {abs(req['mask']['margin_db']):.2f} dB" in line
+
+
+@pytest.mark.parametrize("sites", [rect_sites, tri_sites])
+def test_beamwidth_penalty_sees_the_reported_widest_beam(sites):
+    """The search's widest beam (half-power points from the grids' column and row sums,
+    over the beams that can be widest) equals the reported one (exact pattern, every beam
+    of the scan set's edge and centre at the band's edges) to its 4 decimals, for random layouts
+    (math: the array factor along an axis is that of the sums along the other), and the
+    penalty is 10 dB per degree above the limit."""
+    from thinning.analysis.scan_figures import widest_beam
+    from thinning.engine.exact import GridExact
+    from thinning.search.penalty import HPBW_PENALTY_DB_PER_DEG
+
+    s = sites()
+    p = ThinningProblem(s, len(s) // 2, LAM, coverage=COV, hpbw_max=10.0)
+    grids = s.to_grid(p.to_masks(p.random_genomes(np.random.default_rng(2), 6)).astype(float))
+    p.hpbw_penalty(grids[:1])  # builds the penalty
+    widest = p._hpbw.widest(grids)
+    g = p.engine.grid
+    for i in range(len(grids)):
+        ex = GridExact(grids[i], p.engine.pitch, LAM)
+        ref = widest_beam(ex, (g.du, g.dv), False, COV)["hpbw_widest_deg"]
+        assert widest[i] == pytest.approx(ref, abs=6e-5)
+    pen = p.hpbw_penalty(grids)
+    np.testing.assert_allclose(pen, HPBW_PENALTY_DB_PER_DEG * np.maximum(0, widest - 10.0))

@@ -422,7 +422,7 @@ class Coverage:
         return _region_polygon(self)
 
     # -- beamwidth over the scan set and band ------------------------------------------------
-    def beamwidths(self, d_u, d_v=None, edge: int = 32):
+    def beamwidths(self, d_u, d_v=None, edge: int = 32, beams=None):
         """Half-power beamwidths  [deg] of the beams of the scan set's edge and centre at the
         band's edges and f₀, from the broadside pattern's half-power offsets.
 
@@ -437,19 +437,15 @@ class Coverage:
         ----------
         d_u, d_v : ((B,) array, (B,) array)  [1]   (d₊, d₋) along u and along v for B
             patterns; d_v None for a line array (no width across it)
+        beams : (K, 3) array, optional   (u₀, v₀, f) of the beams (default: the scan set's
+            edge and centre at the band's edges and f₀, those that stay visible)
 
         Returns
         -------
         widths : (B, K) array  [deg]   the wider of the two widths of each of K beams
         beams : (K, 3) array   (u₀, v₀, f [Hz]) of each beam
         """
-        pts = np.vstack([self.scan.edge(edge), self.scan.beams(3)])
-        beams = []
-        for f in self.frequencies:
-            for w0 in pts:
-                if np.hypot(*self.beam_direction(w0, f)) <= 1.0:
-                    beams.append((w0[0], w0[1], f))
-        beams = np.asarray(beams, dtype=float).reshape(-1, 3)
+        beams = self._hpbw_beams(edge) if beams is None else np.asarray(beams, dtype=float)
         rho = beams[:, 2] / self.frequency
         wb = beams[:, :2] / rho[:, None] if self.steering == "phase" else beams[:, :2]
 
@@ -467,26 +463,18 @@ class Coverage:
             w = np.maximum(w, width(d_v[0], d_v[1], 1))
         return w, beams
 
-    def widest_beamwidth(self, exact, step, n: int, linear: bool, guess=None, iterations=5):
-        """The widest half-power beamwidth  [deg] over :meth:`beamwidths`' beams of each of
-        the n patterns of a stacked exact evaluator, their half-power offsets found by
-        :func:`thinning.engine.metrics.half_power_offsets_batch` (from ``guess``, the
-        offsets of a similar pattern: (d_u, d_v) pairs).
-
-        Returns
-        -------
-        widest : (n,) array  [deg]
-        """
-        from .metrics import half_power_offsets_batch
-
-        gu, gv = (None, None) if guess is None else guess
-        du, dv = step
-        d_u = half_power_offsets_batch(exact, (1.0, 0.0), 0.5 * du, n, iterations, gu)
-        d_v = None
-        if not linear:
-            d_v = half_power_offsets_batch(exact, (0.0, 1.0), 0.5 * dv, n, iterations, gv)
-        widths, _ = self.beamwidths(d_u, d_v)
-        return widths.max(axis=1)
+    def _hpbw_beams(self, edge: int) -> np.ndarray:
+        """(u₀, v₀, f) of the beams of :meth:`beamwidths` that stay visible (kept)."""
+        kept = self.__dict__.setdefault("_beams", {})
+        if edge not in kept:
+            pts = np.vstack([self.scan.edge(edge), self.scan.beams(3)])
+            rows = []
+            for f in self.frequencies:
+                wb = self.beam_direction(pts, f)
+                vis = np.hypot(wb[:, 0], wb[:, 1]) <= 1.0
+                rows.append(np.column_stack([pts[vis], np.full(int(vis.sum()), f)]))
+            kept[edge] = np.vstack(rows)
+        return kept[edge]
 
     def describe(self) -> str:
         text = self.scan.describe()
