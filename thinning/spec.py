@@ -16,6 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
+from .engine.coverage import coverage_from_spec
+from .engine.mask import mask_from_spec
 from .errors import SpecError, where
 from .geometry.aperture import Aperture
 from .geometry.lattice import LATTICE_KINDS, Lattice, Sites, grating_lobe_positions
@@ -57,10 +59,18 @@ METHOD_OPTIONS = {
 }
 
 KEYS = {
-    "array": {"frequency_ghz", "lattice", "spacing_mm", "origin_mm", "element_exponent"},
+    "array": {
+        "frequency_ghz",
+        "lattice",
+        "spacing_mm",
+        "origin_mm",
+        "element_exponent",
+        "element_pattern",
+    },
     "aperture": {"outline_mm", "holes_mm", "edge_clearance_mm", "sites"},
     "budget": {"elements", "fill"},
-    "scan": {"max_deg"},
+    "scan": {"max_deg", "azimuth_deg", "elevation_deg"},
+    "band": {"ghz", "steering"},
     "search": {
         "pareto_population",
         "method",
@@ -75,7 +85,7 @@ KEYS = {
     }
     | METHOD_OPTIONS,
     "constraints": {"symmetry", "pin_outer_ring", "pin_ids", "forbid_ids", "pin_mm", "forbid_mm"},
-    "requirements": {"psl_db", "asl_db"},
+    "requirements": {"psl_db", "asl_db", "hpbw_max_deg", "mask"},
     "stress": {
         "band_ghz",
         "steering",
@@ -116,8 +126,12 @@ class Spec:
     aperture : Aperture or None (linear arrays)
     linear_sites : int or None
     elements : int
-    scan_max : float  [rad]
+    scan_max : float  [rad]   the scan cone's half-angle (a sector's enclosing cone's)
     element_exponent : float
+    coverage : Coverage   the scan set over the band ([scan], [band])
+    mask : tuple of MaskEntry   [requirements] mask
+    element : TabulatedElement or None   [array] element_pattern
+    hpbw_max : float or None  [deg]   [requirements] hpbw_max_deg
     method, seed, objective, ... : search settings
     """
 
@@ -155,10 +169,54 @@ class Spec:
     robust_percentile: float = 90.0
     robust_seed: int = 0
     text: str = ""
+    coverage: object = None
+    mask: tuple = ()
+    element: object = None
+    hpbw_max: float | None = None
 
     @property
     def wavelength(self) -> float:
         return wavelength(self.frequency)
+
+    @property
+    def element_model(self):
+        """The element pattern: the table of ``element_pattern``, else cosᵠθ."""
+        from .engine.element import CosineElement
+
+        return self.element if self.element is not None else CosineElement(self.element_exponent)
+
+    @property
+    def has_scan_set(self) -> bool:
+        """The spec uses a sector, a band or a mask (the issue-15 keys)."""
+        return self.coverage is not None and (
+            self.coverage.scan.kind != "cone" or self.coverage.band is not None
+        )
+
+    def score_options(self, elements: float) -> dict:
+        """The keywords of :func:`thinning.analysis.score.score_layout` that the scan set,
+        band, mask and element pattern of the spec give (``elements``: N_eff)."""
+        return {
+            "coverage": self.coverage if self.has_scan_set else None,
+            "limits": self.limits(elements),
+            "element": self.element,
+        }
+
+    def limits(self, elements: float):
+        """The sidelobe limits of [requirements] (the mask and psl_db), or None without a
+        mask. ``elements``: N_eff, for ``level_dbi`` entries."""
+        if not self.mask:
+            return None
+        from .engine.mask import SidelobeLimits
+
+        kept = self.__dict__.setdefault("_limits", {})  # its zones are built once
+        if float(elements) not in kept:
+            kept[float(elements)] = SidelobeLimits(
+                tuple(self.mask),
+                self.requirements.get("psl_db"),
+                self.element_model,
+                float(elements),
+            )
+        return kept[float(elements)]
 
     def sites(self) -> Sites:
         """The candidate sites of the panel (or of the linear array)."""
@@ -199,6 +257,9 @@ class Spec:
             robust_trials=self.robust_trials,
             robust_percentile=self.robust_percentile,
             robust_seed=self.robust_seed,
+            coverage=self.coverage if self.has_scan_set else None,
+            limits=self.limits(n),
+            hpbw_max=self.hpbw_max,
         )
 
     def constraint_masks(self, sites: Sites) -> tuple[np.ndarray, np.ndarray]:
@@ -392,6 +453,9 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
     scan_deg = _number(
         _get(raw, "scan", "max_deg", src, default=0.0), src, "scan.max_deg", lo=0, hi=89.9
     )
+    coverage = coverage_from_spec(
+        raw.get("scan", {}), raw.get("band"), ghz_to_hz(freq_ghz), scan_deg, src, _pair, _choice
+    )
 
     aperture, n_sites = None, None
     if kind == "linear":
@@ -486,8 +550,19 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
     pin_mm = _points(con.get("pin_mm", []), src, "constraints.pin_mm")
     forbid_mm = _points(con.get("forbid_mm", []), src, "constraints.forbid_mm")
     req = {}
+    mask = ()
+    hpbw_max = None
     for k, v in raw.get("requirements", {}).items():
-        req[k] = _number(v, src, f"requirements.{k}", hi=0)
+        if k == "mask":
+            mask = mask_from_spec(v, src, _pair, _number)
+            req[k] = [e.to_dict() for e in mask]
+        elif k == "hpbw_max_deg":
+            hpbw_max = req[k] = _number(v, src, f"requirements.{k}", lo=0, hi=180, lo_open=True)
+        else:
+            req[k] = _number(v, src, f"requirements.{k}", hi=0)
+    element = None
+    if "element_pattern" in raw.get("array", {}):
+        element = _element(raw["array"]["element_pattern"], src)
     output = dict(raw.get("output", {}))
     if "footprint_mm" in output:
         output["footprint_mm"] = _number(
@@ -541,13 +616,25 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
 
     lam = wavelength(ghz_to_hz(freq_ghz))
     scan = deg_to_rad(scan_deg)
-    glob = grating_lobe_positions(lattice.basis, lam, scan)
-    if len(glob):
-        warnings.append(
-            f"{src}: array.spacing_mm {spacing!r} lets grating lobes into the scan cone of "
-            f"{scan_deg:g} deg at {freq_ghz:g} GHz (nearest at |u, v| = "
-            f"{float(np.hypot(*glob[0])):.3f}); they count as sidelobes"
+    if coverage.scan.kind == "cone" and coverage.band is None:
+        glob = grating_lobe_positions(lattice.basis, lam, scan)
+        if len(glob):
+            warnings.append(
+                f"{src}: array.spacing_mm {spacing!r} lets grating lobes into the scan cone of "
+                f"{scan_deg:g} deg at {freq_ghz:g} GHz (nearest at |u, v| = "
+                f"{float(np.hypot(*glob[0])):.3f}); they count as sidelobes"
+            )
+    else:  # the sector's enclosing cone at the band's top
+        f_hi = max(coverage.frequencies)
+        glob = grating_lobe_positions(
+            lattice.basis, wavelength(f_hi), coverage.scan.enclosing_angle
         )
+        if len(glob):
+            warnings.append(
+                f"{src}: array.spacing_mm {spacing!r} may let grating lobes into the visible "
+                f"region when steering over the {coverage.scan.describe()} at {f_hi / 1e9:g} "
+                "GHz; they count as sidelobes"
+            )
     return Spec(
         source=src,
         raw=raw,
@@ -558,7 +645,7 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         linear_sites=n_sites,
         budget_elements=elements,
         budget_fill=fill,
-        scan_max=scan,
+        scan_max=coverage.scan.enclosing_angle if coverage.scan.kind == "sector" else scan,
         element_exponent=q,
         method=method,
         seed=seed,
@@ -582,4 +669,31 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         robust_trials=r_trials,
         robust_percentile=r_pct,
         robust_seed=r_seed,
+        coverage=coverage,
+        mask=mask,
+        element=element,
+        hpbw_max=hpbw_max,
     )
+
+
+def _pair(value, src, key, lo, hi) -> tuple[float, float]:
+    """[a, b] with lo ≤ a ≤ b ≤ hi."""
+    if not (isinstance(value, list) and len(value) == 2):
+        raise SpecError(f"{where(src, key)}{value!r}: expected [low, high]")
+    a, b = (_number(x, src, key, lo=lo, hi=hi) for x in value)
+    if a > b:
+        raise SpecError(f"{where(src, key)}{value!r}: low must not be above high")
+    return a, b
+
+
+def _element(value, src):
+    """[array] element_pattern: the table, read relative to the spec's folder."""
+    from .engine.element import TabulatedElement
+    from .io.element_csv import read_element_csv
+
+    if not isinstance(value, str) or not value.strip():
+        raise SpecError(f"{where(src, 'array.element_pattern')}expected a CSV file name")
+    path = Path(value)
+    if not path.is_absolute() and src:
+        path = Path(src).parent / path
+    return TabulatedElement.from_table(read_element_csv(path))

@@ -110,6 +110,7 @@ def score_spec_layout(spec: Spec, sites, mask, source=None):
         spec.element_exponent,
         sites=sites,
         oversampling=spec.oversampling,
+        **spec.score_options(len(layout)),
     ).to_dict()
     metrics["scoring_s"] = round(time.perf_counter() - t, 3)
     return layout, metrics
@@ -225,8 +226,9 @@ def write_run_files(out: Path, layout: Layout, meta: dict, extra=None) -> list[P
     return [out / n for n in names]
 
 
-def format_progress(method: str):
-    """A progress printer for stderr: best PSL so far, evaluations per second, time left."""
+def format_progress(method: str, figure: str = "best PSL"):
+    """A progress printer for stderr: best PSL so far (``figure``: how to name the search's
+    first figure, e.g. the worst excess over a mask), evaluations per second, time left."""
     import sys
 
     tty = sys.stderr.isatty()
@@ -247,7 +249,7 @@ def format_progress(method: str):
         psl_s = "n/a" if psl is None or not np.isfinite(psl) else f"{psl:.2f} dB"
         line = (
             f"{method}: {p['evaluations']:,} evaluations ({p['rate']:,.0f}/s), "
-            f"best PSL {psl_s}{left_s}"
+            f"{figure} {psl_s}{left_s}"
         )
         if tty:
             sys.stderr.write("\r" + line.ljust(78))

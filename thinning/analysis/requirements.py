@@ -7,6 +7,15 @@ that much room) and whether it is met.
 
 Each kind of requirement is one entry of :data:`KINDS`: the spec key, the figure it is judged
 on (a ``score --json`` key), and the sense of the comparison. A new kind is a new entry.
+
+* ``psl_db``, ``asl_db``: over the sidelobe region of the scan set and band (the worst beam
+  and frequency);
+* ``hpbw_max_deg``: the widest half-power beamwidth over the scan set and band
+  (``hpbw_widest_deg``);
+* ``mask``: the worst margin over every beam and frequency (``mask``, :func:`thinning.
+  analysis.scan_figures.mask_figure`); its verdict's ``required`` is the limit at the worst
+  point and ``achieved`` the pattern there (both relative to the beam's peak), with the
+  beam, frequency and direction where it is.
 """
 
 from __future__ import annotations
@@ -37,6 +46,15 @@ class Requirement:
     unit: str
     at_most: bool = True
 
+    def values(self, required, figures: Mapping):
+        """(required, achieved, extra) as numbers for the verdict, from the spec's value and
+        the figures; ``extra``: further keys of the verdict."""
+        if self.key == "mask":
+            m = figures.get(self.figure) or {}
+            extra = {k: m[k] for k in ("beam", "frequency_ghz", "direction") if k in m}
+            return m.get("limit_db"), m.get("level_db"), extra
+        return float(required), figures.get(self.figure), {}
+
     def margin(self, required: float, achieved: float) -> float:
         """Room left: positive when met, in the requirement's unit."""
         return required - achieved if self.at_most else achieved - required
@@ -54,6 +72,8 @@ KINDS: dict[str, Requirement] = {
     for r in (
         Requirement("psl_db", "PSL", "psl_db", "dB"),
         Requirement("asl_db", "ASL", "asl_db", "dB"),
+        Requirement("hpbw_max_deg", "HPBW", "hpbw_widest_deg", "deg"),
+        Requirement("mask", "sidelobe mask", "mask", "dB"),
     )
 }
 
@@ -77,17 +97,19 @@ def judge(requirements: Mapping[str, float], figures: Mapping) -> dict[str, dict
     for key, kind in KINDS.items():
         if key not in requirements:
             continue
-        required = float(requirements[key])
-        achieved = figures.get(kind.figure)
-        ok = achieved is not None and math.isfinite(float(achieved))
-        margin = kind.margin(required, float(achieved)) if ok else None
+        required, achieved, extra = kind.values(requirements[key], figures)
+        ok = required is not None and achieved is not None and math.isfinite(float(achieved))
+        margin = kind.margin(float(required), float(achieved)) if ok else None
+        if key == "mask" and (figures.get("mask") or {}).get("margin_db") is not None:
+            margin = float(figures["mask"]["margin_db"])
         out[key] = {
-            "required": required,
+            "required": None if required is None else float(required),
             "achieved": float(achieved) if ok else None,
             "margin_db": None if margin is None else round(margin, 6),
-            "met": bool(ok and margin >= 0),
+            "met": bool(margin is not None and margin >= 0),
             "label": kind.label,
             "unit": kind.unit,
+            **extra,
         }
     return out
 
@@ -99,9 +121,12 @@ def all_met(verdicts: Mapping[str, Mapping]) -> bool | None:
     return all(v["met"] for v in verdicts.values())
 
 
-def describe(key: str, required: float, plain: bool = False) -> str:
-    """ "PSL ≤ -17 dB" for a requirement ("PSL <= -17 dB" when ``plain``)."""
+def describe(key: str, required, plain: bool = False) -> str:
+    """ "PSL ≤ -17 dB" for a requirement ("PSL <= -17 dB" when ``plain``); "the sidelobe
+    mask" for a mask (its limit varies with the direction)."""
     kind = KINDS[key]
+    if key == "mask":
+        return "the sidelobe mask"
     return f"{kind.label} {kind.sign(plain)} {required:g} {kind.unit}"
 
 

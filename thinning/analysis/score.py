@@ -64,6 +64,16 @@ class ScoreResult:
     element_exponent: float
     lattice: dict = field(default_factory=dict)
     evaluation: dict = field(default_factory=dict)
+    scan_set: dict | None = None
+    band_ghz: list | None = None
+    steering: str | None = None
+    hpbw_widest_deg: float | None = None
+    hpbw_widest_beam: dict | None = None
+    mask: dict | None = None
+    element_pattern: str | None = None
+    gain_dbi: float | None = None
+    gain_scan_min_dbi: float | None = None
+    scan_loss_max_db: float | None = None
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -82,10 +92,13 @@ def layout_engine(
     oversampling: float = 4.0,
     workers: int = -1,
     full: bool = False,
+    region_map=None,
 ):
     """The pattern engine for a layout, its excitation and its exact evaluator.
 
-    ``full`` keeps the whole u-v period on a grid (for off-centre sidelobe discs).
+    ``full`` keeps the whole u-v period on a grid (for off-centre sidelobe discs);
+    ``region_map`` gives the region of a scan sector or band and a mask's limits
+    (:class:`thinning.engine.mask.RegionMap`).
 
     Returns
     -------
@@ -107,6 +120,7 @@ def layout_engine(
             workers=workers,
             full=full,
             compiled=False,  # a few evaluations: not worth loading the compiled loops
+            region_map=region_map,
         )
         return eng, grid, eng.exact(grid), fit
     eng = DirectPatternEngine(
@@ -117,6 +131,7 @@ def layout_engine(
         scan_max,
         oversampling,
         linear=layout.is_linear,
+        region_map=region_map,
     )
     return eng, None, eng.pexact, None
 
@@ -156,10 +171,10 @@ def _site_positions(sites):
     return np.asarray(sites, dtype=float).reshape(-1, 2)
 
 
-def _filled_asl(xy, lam, scan_max, oversampling) -> float:
+def _filled_asl(xy, lam, scan_max, oversampling, region_map=None) -> float:
     """ASL of every candidate site filled (uniform weights), sampled  [1, linear]."""
     filled = Layout(xy[:, 0], xy[:, 1])
-    eng, grid, _, _ = layout_engine(filled, lam, scan_max, oversampling)
+    eng, grid, _, _ = layout_engine(filled, lam, scan_max, oversampling, region_map=region_map)
     if grid is None:
         return float(eng.detail().asl)
     return float(eng.evaluate(grid, refine=False).asl[0])
@@ -174,8 +189,20 @@ def score_layout(
     oversampling: float = 4.0,
     workers: int = -1,
     progress=None,
+    coverage=None,
+    limits=None,
+    element=None,
 ) -> ScoreResult:
     """All figures of a layout.
+
+    With ``coverage`` (a scan sector or a band, :class:`thinning.engine.coverage.Coverage`)
+    the PSL and ASL are taken over its sidelobe region, the worst over every beam and
+    frequency (``scan_max`` is then its enclosing cone's, for the grating-lobe check); with
+    ``limits`` (a mask, :class:`thinning.engine.mask.SidelobeLimits`) ``mask`` holds the
+    worst margin (:func:`thinning.analysis.scan_figures.mask_figure`); with a tabulated
+    ``element`` the directivity uses its pattern and ``gain_dbi``, ``scan_loss_max_db``
+    its gain. ``hpbw_widest_deg`` is the widest beam over the scan set and band (the cone
+    ``scan_max`` at one frequency without ``coverage``).
 
     Parameters
     ----------
@@ -217,7 +244,20 @@ def score_layout(
             f"{where(layout.source, None)}{count} candidate sites for {n} elements: fewer "
             "sites than elements"
         )
-    eng, grid, exact, fit = layout_engine(layout, lam, scan_max, oversampling, workers)
+    from ..engine.coverage import Coverage
+    from ..engine.mask import RegionMap
+    from . import scan_figures
+
+    cov = coverage if coverage is not None else Coverage.cone(scan_max, frequency)
+    plain_map = scan_figures.region_map(coverage)
+    if coverage is not None and (coverage.scan.kind != "cone" or coverage.band is not None):
+        scan_max = coverage.scan.enclosing_angle
+        lam_gl = wl(max(coverage.frequencies))  # grating lobes at the band's top
+    else:
+        lam_gl = lam
+    eng, grid, exact, fit = layout_engine(
+        layout, lam, scan_max, oversampling, workers, region_map=plain_map
+    )
     g = eng.grid
 
     def stage(text, work):
@@ -230,13 +270,21 @@ def score_layout(
         n * samples,
     )
     detail = eng.detail(grid) if grid is not None else eng.detail()
+    linear = (fit is not None and fit.linear) or (fit is None and layout.is_linear)
+    if plain_map is not None and plain_map.disc is None:
+        # a sector's region: its edge on the continuous pattern, not between samples
+        val, at, _, _ = scan_figures.polished_max(
+            eng, grid, exact, [(0.0, cov.region_polygon())], linear, detail
+        )
+        if at is not None and val > detail.psl:
+            detail.psl, detail.psl_uv = val, at
 
     # directivity and the cell-gain rule
     lattice_info: dict
     glob = np.zeros((0, 2))
     if fit is not None:
         gx, gy = fit.pitch
-        d = metrics.directivity_grid(grid, (gx, gy), lam, q)
+        d = metrics.directivity_grid(grid, (gx, gy), lam, q, element=element)
         basis_idx = generated_lattice(fit.col, fit.row)
         basis = basis_idx * np.array([[gx], [gy]])
         if site_xy is None:
@@ -249,13 +297,13 @@ def score_layout(
             rule = metrics.linear_gain_rule(n, step, lam, q)
             basis_note = "2·N·d/λ × element directivity across the line (linear array)"
             lin_basis = np.array([[step, 0.0], [0.0, 0.0]])
-            glob = grating_lobe_positions(lin_basis, lam, scan_max) if n > 1 else glob
+            glob = grating_lobe_positions(lin_basis, lam_gl, scan_max) if n > 1 else glob
             lattice_info = {"kind": "linear", "pitch_mm": [gx * 1e3], "step_mm": step * 1e3}
         else:
             cell = abs(float(np.linalg.det(basis)))
             rule = metrics.cell_gain_rule(n, cell, lam)
             basis_note = "4π·N·A_cell/λ² (lattice cell)"
-            glob = grating_lobe_positions(basis, lam, scan_max)
+            glob = grating_lobe_positions(basis, lam_gl, scan_max)
             lattice_info = {
                 "kind": "grid",
                 "pitch_mm": [gx * 1e3, gy * 1e3],
@@ -266,7 +314,7 @@ def score_layout(
     else:
         # a pair costs about ten pattern terms (a Bessel function)
         stage(f"directivity: pairwise sum over {n * (n - 1) // 2:,} element pairs", 10 * n * n)
-        d = metrics.directivity_points(layout.x, layout.y, layout.weights, lam, q)
+        d = metrics.directivity_points(layout.x, layout.y, layout.weights, lam, q, element=element)
         m_lat = None
         filled_asl = 0.0
         if layout.is_linear:
@@ -283,7 +331,7 @@ def score_layout(
         lattice_info = {"kind": "off-lattice"}
     if site_xy is not None:
         m, basis_key = len(site_xy), "sites"
-        filled_asl = _filled_asl(site_xy, lam, scan_max, oversampling)
+        filled_asl = _filled_asl(site_xy, lam, scan_max, oversampling, plain_map)
     elif sites is not None:
         m, basis_key = int(sites), "count"
     else:
@@ -305,6 +353,23 @@ def score_layout(
         bw.append(metrics.beamwidth_deg(yp, ym))
         bw_scan.append(metrics.beamwidth_deg(yp, ym, u_scan))
 
+    extra = scan_figures.scan_set_keys(cov)
+    extra.update(
+        scan_figures.widest_beam(
+            exact, (g.du, g.dv), linear, cov, (xp, xm), None if linear else (yp, ym)
+        )
+    )
+    if limits is not None and limits.any:
+        stage("the mask's margin over every beam and frequency", n * samples)
+        eng_m, _, _, _ = layout_engine(
+            layout, lam, scan_max, oversampling, workers, region_map=RegionMap(cov, limits)
+        )
+        extra["mask"] = scan_figures.mask_figure(eng_m, grid, exact, cov, limits, linear)
+    if element is not None and element.tabulated:
+        extra.update(scan_figures.gain_figures(element, layout.weights, cov))
+    extra["element_pattern"] = (
+        element.describe() if element is not None else f"cos^{float(q):g}(theta)"
+    )
     directivity_dbi = float(to_db(d))
     pi_n_dbi = float(to_db(rule))
     return ScoreResult(
@@ -336,4 +401,5 @@ def score_layout(
             "oversampling": float(oversampling),
             "lobes_refined": detail.refined,
         },
+        **extra,
     )

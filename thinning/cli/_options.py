@@ -53,32 +53,36 @@ def _apply(options, f):
     return f
 
 
-def pattern_options(f):
-    """--freq-ghz (required), --scan-max-deg, --element-exponent."""
+def pattern_options(f, spec: bool = False):
+    """--freq-ghz (required), --scan-max-deg, --element-exponent; with ``spec`` none is
+    required and each defaults to the spec's (None when not given)."""
     return _apply(
         [
             click.option(
                 "--freq-ghz",
                 type=float,
-                required=True,
+                required=not spec,
+                default=None,
                 callback=check_frequency,
-                help="Design frequency [GHz].",
+                help="Design frequency [GHz]" + (" (required without --spec)." if spec else "."),
             ),
             click.option(
                 "--scan-max-deg",
                 type=float,
-                default=0.0,
-                show_default=True,
+                default=None if spec else 0.0,
+                show_default=not spec,
                 callback=check_angle,
-                help="Half-angle of the scan cone [deg].",
+                help="Half-angle of the scan cone [deg]"
+                + ("  [default: the spec's scan set, or 0]." if spec else "."),
             ),
             click.option(
                 "--element-exponent",
                 type=float,
-                default=1.0,
-                show_default=True,
+                default=None if spec else 1.0,
+                show_default=not spec,
                 callback=check_exponent,
-                help="Element power pattern cos^Q(theta); 0 = isotropic.",
+                help="Element power pattern cos^Q(theta); 0 = isotropic"
+                + ("  [default: the spec's pattern, or 1]." if spec else "."),
             ),
         ],
         f,

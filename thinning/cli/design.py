@@ -79,7 +79,8 @@ def design(ctx, spec_toml, out_dir, workers, quiet):
     spec = load_spec(spec_toml)
     for w in spec.warnings:
         click.echo(f"thinning design: warning: {w}", err=True)
-    progress = None if quiet else format_progress(spec.method)
+    figure = "worst excess over the mask" if spec.mask else "best PSL"
+    progress = None if quiet else format_progress(spec.method, figure)
     result = run_design(
         spec, out_dir, workers=workers, progress=progress, extra_outputs=_extra_outputs()
     )

@@ -204,8 +204,9 @@ def report(
         from ..errors import LayoutError
 
         raise LayoutError(f"--failures {failures}: the layout has only {len(layout)} elements")
-    stress = default_stress(layout, f, scan, element_exponent, cfg)
-    metrics = score_layout(layout, f, scan, element_exponent, sites=sites).to_dict()
+    stress = default_stress(layout, f, scan, element_exponent, cfg, spec=spec)
+    extra = {} if spec is None else spec.score_options(len(layout))
+    metrics = score_layout(layout, f, scan, element_exponent, sites=sites, **extra).to_dict()
     verdicts = None if spec is None else judge(spec.requirements, metrics)
     path = write_report(
         out,

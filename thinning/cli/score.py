@@ -45,12 +45,36 @@ def format_table(r: dict) -> str:
         ("difference", f"{num(r['directivity_minus_pi_n_db'], '+.2f')} dB"),
         ("HPBW broadside x-z / y-z", f"{pair(r['hpbw_deg'])} deg"),
         ("HPBW at scan edge x-z / y-z", f"{pair(r['hpbw_scan_deg'])} deg"),
+        ("HPBW, widest beam", f"{num(r.get('hpbw_widest_deg'), '.2f')} deg"),
         ("grating lobes in cone", "yes" if r["grating_lobes"] else "no"),
         (
             "pattern evaluation",
             f"{r['evaluation']['engine']}, {r['evaluation']['lobes_refined']} lobes refined",
         ),
     ]
+    if r.get("scan_set", {}).get("kind") == "sector":
+        sc = r["scan_set"]
+        rows.insert(
+            5,
+            (
+                "scan sector",
+                f"azimuth {sc['azimuth_deg'][0]:g} to {sc['azimuth_deg'][1]:g} deg, elevation "
+                f"{sc['elevation_deg'][0]:g} to {sc['elevation_deg'][1]:g} deg",
+            ),
+        )
+    if r.get("band_ghz"):
+        lo, hi = r["band_ghz"]
+        rows.insert(5, ("band", f"{lo:g} to {hi:g} GHz, {r['steering']} steering"))
+    if r.get("mask"):
+        rows.append(("mask margin", f"{num(r['mask'].get('margin_db'), '+.2f')} dB (worst beam)"))
+    if r.get("gain_dbi") is not None:
+        rows.append(("gain (embedded pattern)", f"{num(r['gain_dbi'], '.2f')} dBi"))
+        rows.append(("largest scan loss", f"{num(r['scan_loss_max_db'], '.2f')} dB"))
+    if r.get("requirements"):
+        from ..analysis.requirements import verdict_phrase
+
+        for key, v in r["requirements"].items():
+            rows.append(("requirement", verdict_phrase(key, v, plain=True)))
     w = max(len(k) for k, _ in rows)
     lines = [f"{k:<{w}}  {v}" for k, v in rows]
     lines.append(
@@ -116,8 +140,9 @@ class _StageProgress:
     type=click.Path(dir_okay=False),
     default=None,
     help="Spec the layout was designed from: its candidate sites (for the fill and the "
-    "random-thinning expectation), frequency, scan cone, element pattern and oversampling, "
-    "unless given here; the figures then equal the design's layout.json.",
+    "random-thinning expectation), frequency, scan cone or sector, band, requirements (the "
+    "mask), element pattern and oversampling, unless given here; the figures then equal "
+    "the design's layout.json.",
 )
 @click.option(
     "--freq-ghz",
@@ -197,13 +222,33 @@ def score(
     if oversampling is None and spec is not None:
         over = spec.oversampling
     candidates = spec.sites() if spec is not None else sites
+    extra = {}
+    if spec is not None:  # the spec's scan set, band, mask and element pattern
+        extra = spec.score_options(len(layout))
+        if scan_max_deg is not None:
+            extra["coverage"] = None
+        if element_exponent is not None:
+            extra["element"] = None
+        if freq_ghz is not None:
+            extra["coverage"] = extra["limits"] = None
     progress = _StageProgress()  # stages of a long direct summation, on stderr
     try:
         result = score_layout(
-            layout, frequency, scan, q, sites=candidates, oversampling=over, progress=progress
+            layout,
+            frequency,
+            scan,
+            q,
+            sites=candidates,
+            oversampling=over,
+            progress=progress,
+            **extra,
         ).to_dict()
     finally:
         progress.close()
+    if spec is not None and spec.requirements:
+        from ..analysis.requirements import judge
+
+        result["requirements"] = judge(spec.requirements, result)
     if as_json:
         click.echo(json.dumps(result, allow_nan=False))
     else:

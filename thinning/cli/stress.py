@@ -19,15 +19,24 @@ def _num(x) -> str:
 
 def format_stress(r: dict) -> str:
     """The readable form of a stress analysis."""
+    scan = f"scan cone {r['scan_max_deg']:g} deg"
+    sc = r.get("scan_set") or {}
+    if sc.get("kind") == "sector":
+        scan = (
+            f"scan sector azimuth {sc['azimuth_deg'][0]:g} to {sc['azimuth_deg'][1]:g} deg, "
+            f"elevation {sc['elevation_deg'][0]:g} to {sc['elevation_deg'][1]:g} deg"
+        )
     out = [
-        f"{r['elements']} elements at {r['frequency_ghz']:g} GHz, scan cone "
-        f"{r['scan_max_deg']:g} deg, element cos^{r['element_exponent']:g}",
+        f"{r['elements']} elements at {r['frequency_ghz']:g} GHz, {scan}, "
+        f"element cos^{r['element_exponent']:g}",
         "",
         "Scan (phase steering at the design frequency):",
         f"  {'theta':>6} {'phi':>5} {'PSL dB':>8} {'gain dBi':>9} {'loss dB':>9} "
         f"{'HPBW deg':>9} {'broadening':>10} {'1/cos':>6}",
     ]
     for s in r["scan"]:
+        if "azimuth_deg" in s:
+            out.append(f"  beam at azimuth {s['azimuth_deg']:g}, elevation {s['elevation_deg']:g}:")
         out.append(
             f"  {s['theta_deg']:>6.1f} {s['phi_deg']:>5.0f} {s['psl_db']:>8.2f} "
             f"{s['gain_dbi']:>9.2f} {-s['scan_loss_db'] + 0.0:>9.2f} "
@@ -35,17 +44,30 @@ def format_stress(r: dict) -> str:
             f"{(s['hpbw_broadening'] or float('nan')):>10.4f} {s['cos_law']:>6.4f}"
         )
     if "band" in r:
+        sector = "azimuth_command_deg" in r["band"][0]
         out += [
             "",
-            f"Band edges ({r['band'][0]['steering']} steering):",
-            f"  {'GHz':>8} {'command':>8} {'beam':>8} {'squint':>7} {'PSL dB':>8}  grating lobe",
+            f"Band edges ({r['band'][0]['steering']} steering; beam angles from boresight):",
+            ("  az/el deg    " if sector else "  ")
+            + f"{'GHz':>8} {'command':>8} {'beam':>8} {'squint':>7} {'PSL dB':>8}  grating lobe",
         ]
         for b in r["band"]:
+            where = ""
+            if sector:
+                el = b.get("elevation_command_deg", 0.0)
+                where = f"{b['azimuth_command_deg']:>5.1f}/{el:<5.1f} "
             out.append(
-                f"  {b['frequency_ghz']:>8.4f} {b['theta_command_deg']:>8.2f} "
+                f"  {where}{b['frequency_ghz']:>8.4f} {b['theta_command_deg']:>8.2f} "
                 f"{b['theta_beam_deg']:>8.2f} {b['squint_deg']:>7.2f} {b['psl_db']:>8.2f}  "
                 f"{'YES' if b['grating_lobe'] else 'no'}"
             )
+    if r.get("mask_margin_db"):
+        mm = r["mask_margin_db"]
+        out += [
+            "",
+            f"Sidelobe mask margin (worst beam and frequency): nominal {_num(mm['nominal'])} dB, "
+            f"median {_num(mm['median'])} dB, kept by 90 % of trials {_num(mm['p10'])} dB",
+        ]
     mc = r["monte_carlo"]
     m = mc["model"]
     out += [
@@ -66,12 +88,22 @@ def format_stress(r: dict) -> str:
 
 @cli.command()
 @click.argument("layout_csv", metavar="LAYOUT.csv", type=click.Path(dir_okay=False))
-@pattern_options
+@click.option(
+    "--spec",
+    "spec_path",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="Spec the layout was designed from: its frequency, scan cone or sector, band, "
+    "sidelobe mask and element pattern (unless given here), so the built array is judged "
+    "against the design's requirement.",
+)
+@lambda f: pattern_options(f, spec=True)
 @error_options(trials=DEFAULT_TRIALS)
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True)
 @click.option("--json", "as_json", is_flag=True, help="Print one JSON object.")
 def stress(
     layout_csv,
+    spec_path,
     freq_ghz,
     scan_max_deg,
     element_exponent,
@@ -94,16 +126,38 @@ def stress(
     layout = read_layout_csv(layout_csv)
     band = None if band_ghz is None else (ghz_to_hz(band_ghz[0]), ghz_to_hz(band_ghz[1]))
     model = ErrorModel(amplitude_error_db, phase_error_deg, phase_bits, failures)
+    extra = {}
+    if spec_path is not None:
+        from ..spec import load_spec
+
+        spec = load_spec(spec_path)
+        extra = spec.score_options(len(layout))
+        if extra["coverage"] is None and spec.mask:
+            extra["coverage"] = spec.coverage
+        frequency = ghz_to_hz(freq_ghz) if freq_ghz is not None else spec.frequency
+        scan = deg_to_rad(scan_max_deg) if scan_max_deg is not None else spec.scan_max
+        q = element_exponent if element_exponent is not None else spec.element_exponent
+        if scan_max_deg is not None:
+            extra["coverage"] = None
+        if element_exponent is not None:
+            extra["element"] = None
+    elif freq_ghz is None:
+        raise click.UsageError("give --freq-ghz (or --spec, whose frequency is used)")
+    else:
+        frequency = ghz_to_hz(freq_ghz)
+        scan = deg_to_rad(scan_max_deg or 0.0)
+        q = 1.0 if element_exponent is None else element_exponent
     r = stress_layout(
         layout,
-        ghz_to_hz(freq_ghz),
-        deg_to_rad(scan_max_deg),
-        element_exponent,
+        frequency,
+        scan,
+        q,
         band=band,
         steering=steering,
         model=model,
         trials=trials,
         seed=seed,
+        **extra,
     )
     if as_json:
         click.echo(json.dumps(r, allow_nan=False))

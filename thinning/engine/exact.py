@@ -182,7 +182,17 @@ class PointExact:
 
 
 def refine_peaks(
-    exact, u, v, step, radius, which=None, linear=False, iterations=12, centre=(0.0, 0.0)
+    exact,
+    u,
+    v,
+    step,
+    radius,
+    which=None,
+    linear=False,
+    iterations=12,
+    centre=(0.0, 0.0),
+    box=None,
+    project=True,
 ):
     """Climb from sample points to the local maxima of the exact pattern.
 
@@ -208,6 +218,13 @@ def refine_peaks(
         Pattern index of each point (for a stacked :class:`GridExact`).
     linear : bool
         Move along u only (v stays 0).
+    box : (m,) array, optional  [samples]
+        How far each point may move from its start along each axis (default 1: the lobe its
+        sample belongs to; ½ keeps it in its own sample cell, for a lobe at the edge of a
+        sampled region or between two limits of a mask).
+    project : bool
+        Keep the points inside the disc (radius, centre); False for a region that is not a
+        disc (the box alone bounds the climb).
 
     Returns
     -------
@@ -221,6 +238,7 @@ def refine_peaks(
     p, g, h = exact.evaluate(u0, v0, which)
     bu, bv, bp = u0.copy(), v0.copy(), p.copy()
     trust = np.full(u0.size, 0.5)
+    lim = 1.0 if box is None else np.asarray(box, dtype=float)
     for _ in range(iterations):
         gs = g * scale  # gradient in sample units
         hs = h * np.outer(scale, scale)[None]
@@ -247,13 +265,14 @@ def refine_peaks(
         d = np.where(negdef[:, None] & np.isfinite(newton).all(axis=1)[:, None], newton, grad)
         n = np.linalg.norm(d, axis=1)
         d *= np.minimum(1.0, trust / np.where(n > 0, n, 1.0))[:, None]
-        su = np.clip((bu - u0) / du + d[:, 0], -1.0, 1.0)
-        sv = np.clip((bv - v0) / dv + d[:, 1], -1.0, 1.0) if not linear else np.zeros_like(su)
+        su = np.clip((bu - u0) / du + d[:, 0], -lim, lim)
+        sv = np.clip((bv - v0) / dv + d[:, 1], -lim, lim) if not linear else np.zeros_like(su)
         tu, tv = u0 + su * du, (v0 + sv * dv) if not linear else v0
-        cu, cv = centre
-        r = np.hypot(tu - cu, tv - cv)
-        shrink = np.where(r > radius, radius / np.where(r > 0, r, 1.0), 1.0)
-        tu, tv = cu + (tu - cu) * shrink, cv + (tv - cv) * shrink
+        if project:
+            cu, cv = centre
+            r = np.hypot(tu - cu, tv - cv)
+            shrink = np.where(r > radius, radius / np.where(r > 0, r, 1.0), 1.0)
+            tu, tv = cu + (tu - cu) * shrink, cv + (tv - cv) * shrink
         tp, tg, th = exact.evaluate(tu, tv, which)
         better = tp > bp
         moved = np.hypot((tu - bu) / du, (tv - bv) / dv)

@@ -23,6 +23,8 @@ __all__ = [
     "expected_asl_random",
     "expected_asl_tapered",
     "half_power_offsets",
+    "half_power_offsets_batch",
+    "axis_half_power",
     "beamwidth_deg",
     "element_beamwidth_deg",
 ]
@@ -70,7 +72,9 @@ def _directivity(peak: float, denominator: float) -> float:
     return 4 * math.pi * peak / denominator
 
 
-def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0, steer=(0.0, 0.0)) -> float:
+def directivity_grid(
+    grid, pitch, wavelength: float, q: float = 1.0, steer=(0.0, 0.0), element=None
+) -> float:
     r"""Broadside directivity of excitations on a rectangular index grid  [1, linear].
 
     .. math::  D = \frac{4\pi\,(\sum a)^2}{\sum_{m,n} a_m a_n K_q(|r_m - r_n|)}
@@ -92,6 +96,10 @@ def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0, steer=(0.0,
     wavelength : float  [m]
     q : float  [1]
     steer : (float, float)  [1]   direction cosines (u₀, v₀) of the steered beam
+    element : thinning.engine.element.ElementPattern, optional
+        A tabulated (embedded) element pattern instead of cosᵠθ: its kernel K(ρ) is complex
+        when the pattern has no symmetry under φ → φ + π, and the denominator is
+        Σ c(ρ)·Re[K(ρ)·exp(−j k ρ·u₀)] (c the autocorrelation, even in ρ).
     """
     a = np.asarray(grid, dtype=np.float64)
     if a.ndim == 1:
@@ -110,6 +118,16 @@ def directivity_grid(grid, pitch, wavelength: float, q: float = 1.0, steer=(0.0,
     keep_r = np.abs(lag_r) < r
     keep_c = np.abs(lag_c) < c
     acf = acf[np.ix_(keep_r, keep_c)]
+    if element is not None and element.tabulated:
+        rx = lag_c[keep_c][None, :] * pitch[0] + 0.0 * lag_r[keep_r][:, None]
+        ry = lag_r[keep_r][:, None] * pitch[1] + 0.0 * rx
+        k = 2 * math.pi / wavelength
+        kern = element.kernel(rx, ry, wavelength) * np.exp(
+            -1j * k * (rx * steer[0] + ry * steer[1])
+        )
+        den = float(np.sum(acf * kern.real))
+        peak = float(element.gain(steer[0], steer[1]))
+        return _directivity(float(a.sum()) ** 2 * peak, den)
     rho = np.hypot(lag_r[keep_r][:, None] * pitch[1], lag_c[keep_c][None, :] * pitch[0])
     kern = element_kernel(rho, wavelength, q)
     u0, v0 = steer
@@ -130,7 +148,9 @@ def _element_gain(steer, q) -> float:
     return max(0.0, 1.0 - s2) ** (q / 2)
 
 
-def directivity_points(x, y, weights, wavelength: float, q: float = 1.0, steer=(0.0, 0.0)) -> float:
+def directivity_points(
+    x, y, weights, wavelength: float, q: float = 1.0, steer=(0.0, 0.0), element=None
+) -> float:
     """Directivity of elements at arbitrary positions (pairwise sum, chunked)  [1].
 
     Same formula as :func:`directivity_grid`, with the pairs summed explicitly.
@@ -140,6 +160,17 @@ def directivity_points(x, y, weights, wavelength: float, q: float = 1.0, steer=(
     a = np.asarray(weights, dtype=float)
     den = 0.0
     step = max(1, PAIR_CHUNK // max(1, x.size))
+    if element is not None and element.tabulated:
+        k = 2 * math.pi / wavelength
+        for s in range(0, x.size, step):
+            dx = x[s : s + step, None] - x[None, :]
+            dy = y[s : s + step, None] - y[None, :]
+            kern = element.kernel(dx, dy, wavelength) * np.exp(
+                -1j * k * (dx * steer[0] + dy * steer[1])
+            )
+            den += float(a[s : s + step] @ kern.real @ a)
+        peak = float(element.gain(steer[0], steer[1]))
+        return _directivity(float(a.sum()) ** 2 * peak, den)
     for s in range(0, x.size, step):
         dx = x[s : s + step, None] - x[None, :]
         dy = y[s : s + step, None] - y[None, :]
@@ -259,6 +290,133 @@ def half_power_offsets(exact, direction, step: float, which=None) -> tuple[float
 
         out.append(brentq(f, found[0], found[1], xtol=1e-12))
     return out[0], out[1]
+
+
+def half_power_offsets_batch(
+    exact, direction, step: float, n: int, iterations: int = 8, guess=None
+):
+    """:func:`half_power_offsets` for the n patterns of a stacked exact evaluator at once.
+
+    Marches outward in steps of ``step`` from ``guess`` (inward first while the pattern
+    there is below one half; from the peak without a guess) to bracket the first half-power
+    point, then narrows the bracket by ``iterations`` steps of the Illinois form of regula
+    falsi (superlinear; a bracket is never lost); ∞ where no half-power point lies within 4
+    in direction cosines.
+
+    Returns
+    -------
+    (d_plus, d_minus) : ((n,) array, (n,) array)  [1]
+    """
+    dx, dy = direction
+    which = np.arange(n)
+    out = []
+
+    def power(t, idx, sign):
+        return exact.evaluate(sign * dx * t, sign * dy * t, which[idx], derivatives=False)
+
+    for k, sign in enumerate((1.0, -1.0)):
+        start = np.zeros(n)
+        if guess is not None:
+            start = np.broadcast_to(np.asarray(guess[k], dtype=float) - step, (n,))
+            start = np.where(np.isfinite(start), np.maximum(start, 0.0), 0.0)
+        idx = np.arange(n)
+        p0 = power(start, idx, sign) - 0.5
+        while np.any((p0 < 0) & (start > 0)):  # back inside the beam first
+            back = (p0 < 0) & (start > 0)
+            start[back] = np.maximum(start[back] - 4 * step, 0.0)
+            p0[back] = power(start[back], idx[back], sign) - 0.5
+        lo, flo = start.copy(), p0
+        hi, fhi = np.full(n, np.nan), np.full(n, np.nan)
+        todo = np.ones(n, dtype=bool)
+        t = start.copy()
+        while todo.any():
+            t[todo] += step
+            todo &= t < 4.0
+            i = np.flatnonzero(todo)
+            if not i.size:
+                break
+            f = power(t[i], i, sign) - 0.5
+            below = f < 0
+            hi[i[below]], fhi[i[below]] = t[i[below]], f[below]
+            lo[i[~below]], flo[i[~below]] = t[i[~below]], f[~below]
+            todo[i[below]] = False
+        ok = np.flatnonzero(np.isfinite(hi))
+        a, fa, b, fb = lo[ok], flo[ok], hi[ok], fhi[ok]
+        side = np.zeros(ok.size)
+        for _ in range(iterations):
+            c = (a * fb - b * fa) / (fb - fa)
+            c = np.where(np.isfinite(c) & (c > a) & (c < b), c, 0.5 * (a + b))
+            fc = power(c, ok, sign) - 0.5
+            left = fc >= 0  # still above one half: the root lies beyond c
+            # Illinois: halve the function value of the end that stays twice in a row
+            fb = np.where(left & (side == 1), 0.5 * fb, fb)
+            fa = np.where(~left & (side == -1), 0.5 * fa, fa)
+            a, fa = np.where(left, c, a), np.where(left, fc, fa)
+            b, fb = np.where(left, b, c), np.where(left, fb, fc)
+            side = np.where(left, 1, -1)
+        d = np.full(n, np.inf)
+        d[ok] = np.where(np.abs(fa) < np.abs(fb), a, b)
+        out.append(d)
+    return out[0], out[1]
+
+
+def axis_half_power(sums, pitch: float, wavelength: float, guess: float, iterations: int = 5):
+    r"""Half-power offsets along one axis of a stack of excitation grids, from their sums.
+
+    Along the u axis (v = 0) the array factor of a grid is that of its column sums,
+
+    .. math::  AF(u, 0) = \sum_c \Big(\sum_r a_{rc}\Big)\, e^{j k x_c u},
+
+    (and along v that of its row sums), so the half-power points of a whole stack follow
+    from a few small products: the pattern on 96 points out to 3 × ``guess`` brackets the
+    first point below one half on each side, and ``iterations`` steps of the Illinois
+    regula falsi narrow it (exact; no angular grid). Real sums give an even pattern
+    (AF(−u) is the conjugate of AF(u)), so d₋ = d₊ without a second search. ∞ where no
+    point below one half lies within 3 × ``guess`` (:func:`half_power_offsets_batch` then
+    marches further).
+
+    Parameters
+    ----------
+    sums : (B, C) array   column (row) sums of each grid
+    pitch : float  [m]   the grid's pitch along the axis
+    wavelength : float  [m]
+    guess : float  [1]   a half-power offset of a similar pattern (the all-on layout's)
+
+    Returns
+    -------
+    (d_plus, d_minus) : ((B,) array, (B,) array)  [1]
+    """
+    a = np.asarray(sums, dtype=float)
+    b, c = a.shape
+    kx = 2 * math.pi / wavelength * pitch * (np.arange(c) - (c - 1) / 2)
+    norm = a.sum(axis=1) ** 2
+
+    ts = np.linspace(0.0, 3.0 * guess, 96)
+    out = []
+    for sign in (1.0,) if np.isrealobj(sums) else (1.0, -1.0):
+        p = np.abs(a @ np.exp(1j * sign * np.outer(kx, ts))) ** 2 / norm[:, None] - 0.5
+        below = p < 0
+        first = np.where(below.any(axis=1), np.argmax(below, axis=1), -1)
+        d = np.full(b, np.inf)
+        ok = np.flatnonzero(first > 0)
+        lo, hi = ts[first[ok] - 1], ts[first[ok]]
+        flo, fhi = p[ok, first[ok] - 1], p[ok, first[ok]]
+        side = np.zeros(ok.size)
+        sub = a[ok]
+        for _ in range(iterations):
+            t = (lo * fhi - hi * flo) / (fhi - flo)
+            t = np.where(np.isfinite(t) & (t > lo) & (t < hi), t, 0.5 * (lo + hi))
+            e = np.exp(1j * sign * np.multiply.outer(t, kx))
+            f = np.abs(np.einsum("bc,bc->b", sub, e)) ** 2 / norm[ok] - 0.5
+            above = f >= 0
+            fhi = np.where(above & (side == 1), 0.5 * fhi, fhi)
+            flo = np.where(~above & (side == -1), 0.5 * flo, flo)
+            lo, flo = np.where(above, t, lo), np.where(above, f, flo)
+            hi, fhi = np.where(above, hi, t), np.where(above, fhi, f)
+            side = np.where(above, 1, -1)
+        d[ok] = np.where(np.abs(flo) < np.abs(fhi), lo, hi)
+        out.append(d)
+    return (out[0], out[0].copy()) if len(out) == 1 else (out[0], out[1])
 
 
 def beamwidth_deg(d_plus: float, d_minus: float, u0: float = 0.0) -> float | None:

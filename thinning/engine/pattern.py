@@ -120,6 +120,7 @@ class _Engine:
         """Refine candidate samples (pattern b[k], sample flats[k]) on the exact pattern."""
         uv = region.alias_points(flats, region.removed_weight(red, b, flats))
         g = region.grid
+        geff, box = region.refine_terms(red, b, flats)
         p, u, v = refine_peaks(
             exact,
             uv[:, 0],
@@ -129,7 +130,11 @@ class _Engine:
             which=b,
             linear=self.linear,
             centre=region.centre,
+            box=box,
+            project=region.disc,
         )
+        if geff is not None:
+            p = p * geff  # the refined lobe against its sample's limit
         return p, np.column_stack([u, v])
 
     def _scores(self, exact, power, red, region, cap) -> tuple[Scores, int]:
@@ -194,6 +199,9 @@ class FFTPatternEngine(_Engine):
     compiled : bool
         Score the search's evaluations with the compiled loops of :mod:`thinning.engine.fastpath`
         (default) instead of the numpy route; both give the same figures.
+    region_map : thinning.engine.mask.RegionMap, optional
+        The sidelobe region of a scan set over a band, and a mask's limits
+        (:class:`thinning.engine.region.SampledRegion`); ``scan_max`` is then ignored.
     """
 
     def __init__(
@@ -209,7 +217,9 @@ class FFTPatternEngine(_Engine):
         dtype=np.float32,
         full=False,
         compiled=True,
+        region_map=None,
     ):
+        region_shape = region_map
         r, c = int(shape[0]), int(shape[1])
         self.full = bool(full)
         self.linear = bool(linear)
@@ -218,6 +228,8 @@ class FFTPatternEngine(_Engine):
         self.wavelength = float(wavelength)
         self.scan_max = float(scan_max)
         self.radius = 1.0 + math.sin(self.scan_max)
+        if region_shape is not None:
+            self.radius = float(region_shape.reach)
         self.workers = workers
         self.dtype = np.dtype(dtype)
         if self.full:
@@ -245,7 +257,7 @@ class FFTPatternEngine(_Engine):
         )
         # main-beam window in samples: the oversampling actually achieved on the finer axis
         self.window_oversampling = max(pc / c, 1.0 if self.linear else pr / r)
-        self.region = SampledRegion(grid, self.radius, self.window_oversampling)
+        self.region = SampledRegion(grid, self.radius, self.window_oversampling, shape=region_shape)
         self._regions = {}
         self._kxy = None
         self._buffers = {}
@@ -395,12 +407,27 @@ class DirectPatternEngine(_Engine):
         Samples per λ/L, L the array's extent along each axis.
     linear : bool
         All elements on one line along x.
+    region_map : thinning.engine.mask.RegionMap, optional
+        As for :class:`FFTPatternEngine`.
     """
 
-    def __init__(self, x, y, weights, wavelength, scan_max=0.0, oversampling=4.0, linear=False):
+    def __init__(
+        self,
+        x,
+        y,
+        weights,
+        wavelength,
+        scan_max=0.0,
+        oversampling=4.0,
+        linear=False,
+        region_map=None,
+    ):
+        shape = region_map
         self.linear = bool(linear)
         self.wavelength = float(wavelength)
         self.radius = 1.0 + math.sin(float(scan_max))
+        if shape is not None:
+            self.radius = float(shape.reach)
         self.pexact = PointExact(x, y, weights, wavelength)
         x = np.asarray(x, dtype=float)
         y = np.asarray(y, dtype=float)
@@ -416,7 +443,7 @@ class DirectPatternEngine(_Engine):
             half = int(math.ceil(self.radius / dv)) + 1
             nr = 2 * half + 1
         grid = SampleGrid(nr=nr, nc=nc, du=du, dv=dv, period=None, n_full_cols=2 * nc - 1)
-        self.region = SampledRegion(grid, self.radius, s)
+        self.region = SampledRegion(grid, self.radius, s, shape=shape)
 
     @property
     def grid(self) -> SampleGrid:

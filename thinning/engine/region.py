@@ -24,6 +24,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .region_shape import refine_terms, shape_weights
+
 __all__ = ["SampleGrid", "SampledRegion", "Reduction", "FastTables"]
 
 #: Radius of the first main-beam window, in samples per oversampling factor. The first null
@@ -153,6 +155,8 @@ class _Window:
     w0: np.ndarray = None  # weight of the peak's own alias (the one the main beam removes)
     outer_mask: np.ndarray = None  # 1 for region samples outside the window, else 0
     pos: np.ndarray = None  # position in the window of every storage index (−1 outside)
+    gain: np.ndarray = None  # g of each window sample (region's limit weight)
+    galias: np.ndarray = None  # ... and without its own direction (the main beam's)
 
     def main_beam(self, pw: np.ndarray) -> np.ndarray:
         """Main-beam membership of the window samples of a stack of patterns (B, n)."""
@@ -195,9 +199,14 @@ class FastTables:
     weight : (N,) array        region weight of each sample
     nbr : (N, 8) int           its neighbours (−1: none), rows −1, 0, +1 by columns −1, 0, +1
     srows, scols : int arrays  signed row (column) of each storage row (column)
-    geom : (12,) float         nc, du, dv, periodic, tu, tv, n_v aliases, radius, cu, cv,
-                               Newton iterations, Σ weight
-    outer : (L, N) array       1 for region samples outside window k, else 0
+    geom : (15,) float         nc, du, dv, periodic, tu, tv, n_v aliases, radius, cu, cv,
+                               Newton iterations, Σ weight, disc (1: project a climbing lobe
+                               onto the disc), masked (1: limits weigh the samples), sampled
+                               edge (1: a lobe next to a sample outside the region stays in
+                               its own cell)
+    gain, galias : (N,) arrays  g of each sample, and without its own direction (the
+                               region's indicator, 1 or 0, without a mask)
+    outer : (L, N) array       g for region samples outside window k, else 0
     w_flat, w_parent, w_rim, w_weight, w_w0 : (Σ W_k,) arrays   the L windows one after the
                                other (parents counted within their window)
     w_pos : (L, N) int         position of each sample in window k (−1 outside)
@@ -221,10 +230,12 @@ class FastTables:
     w_capped: np.ndarray
     w_start: np.ndarray
     windows: tuple
+    gain: np.ndarray = None
+    galias: np.ndarray = None
 
     @property
     def region(self) -> tuple:
-        return (self.weight, self.nbr, self.srows, self.scols, self.geom)
+        return (self.weight, self.gain, self.galias, self.nbr, self.srows, self.scols, self.geom)
 
     @property
     def levels(self) -> tuple:
@@ -251,15 +262,46 @@ class SampledRegion:
         Radius of the disc: 1 + sin θmax (or 1 for broadside only).
     oversampling : float
         Samples per first-null width, which sets the size of the main-beam window.
+    shape : thinning.engine.mask.RegionMap, optional
+        The region of a scan sector or band and the limits of a mask instead of the disc
+        (``radius`` is then its reach). Each sample carries, besides its weight, the weight
+        g of its limit (:attr:`gain`): the largest 10^{−ℓ/10} over the directions it stands
+        for in the region (1 without a mask), and :attr:`galias`, the same without the
+        sample's own direction (and its mirror), which the main beam takes. The sidelobe
+        figure is then max p·g (the worst excess over the limits) and the ASL is unchanged.
+        A region that is not a disc (a sector) has no disc to project a climbing lobe onto:
+        a lobe at its edge is refined within its own sample cell (half a sample each way),
+        as is a lobe on the edge between two limits.
     """
 
-    def __init__(self, grid: SampleGrid, radius: float, oversampling: float, centre=(0.0, 0.0)):
+    def __init__(
+        self,
+        grid: SampleGrid,
+        radius: float,
+        oversampling: float,
+        centre=(0.0, 0.0),
+        shape=None,
+    ):
         self.grid = grid
         self.radius = float(radius)
         self.oversampling = float(oversampling)
         self.centre = (float(centre[0]), float(centre[1]))
+        if shape is not None and shape.guard_samples > 0:
+            shape = shape.guarded(shape.guard_samples * math.hypot(grid.du, grid.dv))
+        self.shape = shape
+        #: the region is the disc (projection onto it in the refinement), not a sampled shape
+        self.disc = shape is None or shape.disc is not None
+        #: the samples carry mask limits (g ≠ the region's indicator)
+        self.masked = shape is not None and shape.masked
         if self.centre != (0.0, 0.0) and not grid.full:
             raise ValueError("an off-centre sidelobe disc needs a full (not half-plane) grid")
+        if not self.disc:
+            self.radius = float(shape.reach)
+            self.weight, self.w0, self.gain, self.galias = shape_weights(self, shape, True)
+            self.total_weight = float(self.weight.sum())
+            self.in_disc = self.weight > 0
+            self._windows = {}
+            return
         cu, cv = self.centre
         u = grid.u[None, :] - cu
         v = grid.v[:, None] - cv
@@ -287,6 +329,15 @@ class SampledRegion:
         self.total_weight = float(self.weight.sum())
         self.in_disc = count.ravel() > 0
         self._windows: dict[float, _Window] = {}
+        self.gain = (self.weight > 0).astype(np.float64)
+        self.galias = (self.weight - self.w0 > 0).astype(np.float64)
+        if self.masked:
+            _, _, self.gain, self.galias = shape_weights(self, shape, False)
+
+    def effective_gain(self, removed: np.ndarray, flat) -> np.ndarray:
+        """g of samples ``flat`` with the main beam's removed weights ``removed`` there."""
+        flat = np.asarray(flat)
+        return np.where(np.asarray(removed) > 0, self.galias[flat], self.gain[flat])
 
     # -- the main-beam window -------------------------------------------------------------
     def window(self, radius: float | None = None) -> _Window:
@@ -332,7 +383,7 @@ class SampledRegion:
             j = j[j]
         capped = radius >= cmax and (g.nr == 1 or radius >= rmax)
         flat = g.flat(rr, cc)
-        outer = (self.weight > 0).astype(np.float32)
+        outer = self.gain.astype(np.float32)  # g: 1 in the region without a mask
         outer[flat] = 0.0
         w = _Window(
             radius=radius,
@@ -346,6 +397,8 @@ class SampledRegion:
             weight=self.weight[flat],
             w0=self.w0[flat],
             outer_mask=outer,
+            gain=self.gain[flat],
+            galias=self.galias[flat],
         )
         self._windows[radius] = w
         return w
@@ -365,6 +418,8 @@ class SampledRegion:
                 any_tables,
                 weight=self.weight.astype(dtype),
                 outer=any_tables.outer.astype(dtype),
+                gain=self.gain.astype(dtype),
+                galias=self.galias.astype(dtype),
             )
             return self._fast[dtype]
         g = self.grid
@@ -404,6 +459,9 @@ class SampledRegion:
                 self.centre[1],
                 12,  # Newton iterations, as refine_peaks
                 self.total_weight,
+                1.0 if self.disc else 0.0,
+                1.0 if self.masked else 0.0,
+                0.0 if self.disc else 1.0,
             ]
         )
         self._fast[dtype] = FastTables(
@@ -422,6 +480,8 @@ class SampledRegion:
             w_capped=np.array([w.capped for w in wins], dtype=np.bool_),
             w_start=np.cumsum([0] + [w.flat.size for w in wins]).astype(np.int64),
             windows=tuple(wins),
+            gain=self.gain.astype(dtype),
+            galias=self.galias.astype(dtype),
         )
         return self._fast[dtype]
 
@@ -462,7 +522,11 @@ class SampledRegion:
     def _finish(self, out, idx, p, pw, mb, win):
         removed = mb * win.w0[None, :]
         weff = win.weight[None, :] - removed
-        in_win = np.where(weff > 0, pw, 0)
+        if self.masked:  # the worst excess over the limits: max p·g
+            geff = np.where(mb, win.galias[None, :], win.gain[None, :]).astype(pw.dtype)
+            in_win = np.where(weff > 0, pw * geff, 0)
+        else:
+            in_win = np.where(weff > 0, pw, 0)
         outer = p * win.outer_mask.astype(p.dtype)[None, :]
         o_arg = outer.argmax(axis=1)
         w_arg = in_win.argmax(axis=1)
@@ -540,12 +604,23 @@ class SampledRegion:
         power = np.atleast_2d(power)
         top = red.psl * red.peak
         thr = top * 10 ** (-margin_db / 10)
-        b, idx = np.nonzero(power >= thr[:, None].astype(power.dtype))
-        ok = (top[b] > 0) & self._eligible(red, b, idx)
-        b, idx = b[ok], idx[ok]
+        if self.masked:  # local maxima of p·g within the margin of the highest p·g
+            scaled = power * self.gain.astype(power.dtype)[None, :]
+            b, idx = np.nonzero(scaled >= thr[:, None].astype(power.dtype))
+            ok = (top[b] > 0) & self._eligible(red, b, idx)
+            b, idx = b[ok], idx[ok]
+            val = power[b, idx] * self._geff(red, b, idx).astype(power.dtype)
+            ok = val >= thr[b].astype(power.dtype)
+            b, idx = b[ok], idx[ok]
+        else:
+            b, idx = np.nonzero(power >= thr[:, None].astype(power.dtype))
+            ok = (top[b] > 0) & self._eligible(red, b, idx)
+            b, idx = b[ok], idx[ok]
         s, c = np.divmod(idx, g.nc)
         r = g.signed_rows[s]
         here = power[b, idx]
+        if self.masked:
+            here_g = here * self._geff(red, b, idx).astype(power.dtype)
         is_max = np.ones(idx.size, dtype=bool)
         offsets = (
             [(0, -1), (0, 1)]
@@ -557,8 +632,13 @@ class SampledRegion:
             n = g.neighbour(r, c, dr, dc)
             nb[(dr, dc)] = n
             n0 = np.maximum(n, 0)
-            val = np.where((n >= 0) & self._eligible(red, b, n0), power[b, n0], -1.0)
-            is_max &= here >= val
+            if self.masked:
+                pn = power[b, n0] * self._geff(red, b, n0).astype(power.dtype)
+                val = np.where((n >= 0) & self._eligible(red, b, n0), pn, -1.0)
+                is_max &= here_g >= val
+            else:
+                val = np.where((n >= 0) & self._eligible(red, b, n0), power[b, n0], -1.0)
+                is_max &= here >= val
         b, idx, here = b[is_max], idx[is_max], here[is_max]
         logc = np.log(np.maximum(here.astype(np.float64), 1e-300))
         est = logc.copy()
@@ -574,6 +654,8 @@ class SampledRegion:
             delta = np.where(den < 0, 0.5 * (lo_v - hi_v) / np.where(den < 0, den, -1), 0.0)
             est += np.where(den < 0, -0.25 * (lo_v - hi_v) * delta, 0.0)
         est -= np.log(red.peak[b])
+        if self.masked:
+            est += np.log(np.maximum(self._geff(red, b, idx).astype(power.dtype), 1e-300))
         order = np.lexsort((-est, b))
         b, idx = b[order], idx[order]
         first = np.searchsorted(b, b)  # rank within each pattern
@@ -583,6 +665,17 @@ class SampledRegion:
     def _eligible(self, red, b, flat) -> np.ndarray:
         """Is sample ``flat`` in the sidelobe region of pattern ``b``?"""
         return (self.weight[flat] - self.removed_weight(red, b, flat)) > 0
+
+    def _geff(self, red, b, flat) -> np.ndarray:
+        """g of sample ``flat`` of pattern ``b`` (its main beam's direction taken out)."""
+        return self.effective_gain(self.removed_weight(red, b, flat), flat)
+
+    def refine_terms(self, red: Reduction, b, flat):
+        """For candidates (pattern ``b``, sample ``flat``): the g their refined peak is
+        weighted by, and how far (in samples, each way) the refinement may move
+        (:func:`thinning.engine.region_shape.refine_terms`); (None, None) for the disc
+        without a mask."""
+        return refine_terms(self, red, b, flat)
 
     def alias_points(self, flats, removed) -> np.ndarray:
         """Directions (u, v) in the disc that samples stand for, outside the main beam.

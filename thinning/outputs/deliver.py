@@ -71,10 +71,14 @@ def write_drawings(
     return files
 
 
-def default_stress(layout, frequency, scan_max, q, spec_stress: dict | None, robust=None):
+def default_stress(
+    layout, frequency, scan_max, q, spec_stress: dict | None, robust=None, spec=None
+):
     """The built-array analysis for the report: the scan table always; band edges and Monte
-    Carlo errors when the spec states them ([stress] or [robust]). Without an error the
-    Monte Carlo is a single trial (the nominal array), which the report leaves out."""
+    Carlo errors when the spec states them ([stress], [band] or [robust]). Without an error
+    the Monte Carlo is a single trial (the nominal array), which the report leaves out.
+    With ``spec``, its scan set, band, mask and element pattern (the same requirement as
+    the design)."""
     from ..analysis.stress import stress_layout
     from ..engine.excitation import ErrorModel
 
@@ -88,6 +92,9 @@ def default_stress(layout, frequency, scan_max, q, spec_stress: dict | None, rob
     )
     if layout.grid_fit() is None:
         return None
+    extra = {}
+    if spec is not None:
+        extra = spec.score_options(len(layout))
     return stress_layout(
         layout,
         frequency,
@@ -98,6 +105,7 @@ def default_stress(layout, frequency, scan_max, q, spec_stress: dict | None, rob
         model=model,
         trials=int(cfg.get("trials", DEFAULT_TRIALS)) if model.any else 1,
         seed=int(cfg.get("seed", 0)),
+        **extra,
     )
 
 
@@ -190,6 +198,7 @@ def write_deliverables(result, out: Path) -> list[Path]:
         spec.element_exponent,
         spec.raw.get("stress"),
         spec.robust,
+        spec,
     )
     m = result.metrics
     prov = {

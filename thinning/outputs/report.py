@@ -34,6 +34,16 @@ from ..io.atomic import atomic_write
 from . import report_sections as rs
 from .svg_drawing import SVG_CSS, svg_controls
 
+
+def scan_views_html(metrics, spec) -> str:
+    """The mask's entries and worst point (:func:`thinning.outputs.scan_views.mask_html`)."""
+    if spec is None or not getattr(spec, "mask", None):
+        return ""
+    from .scan_views import mask_html
+
+    return mask_html(metrics, spec)
+
+
 __all__ = ["CAUTIONS", "SECTIONS", "build_report", "report_for_layout"]
 
 #: What the figures in a report do not cover, in plain words (shown in every report).
@@ -194,6 +204,7 @@ def build_report(
         lead = f"<p><b>{_e(name)}</b>" + (f": {_e(desc)}" if desc else "") + "</p>"
     if requirements is not None:
         lead += "<h3>Requirements</h3>" + rs.requirements_html(requirements)
+        lead += scan_views_html(m, spec)
     lead += rs.run_html(prov)
     lead += rs.constraints_html(spec, m)
     kind = spec.lattice.kind if spec is not None else None
@@ -210,6 +221,7 @@ def build_report(
         "summary": lead + "<h3>Figures of merit</h3>" + rs.summary_html(m, kind),
         "layout": drawing,
         "pattern": _img(figures.get("uv_map"), "Array factor in u-v")
+        + _mask_figure(figures)
         + (f"<p>{_e(pattern_note)}</p>" if pattern_note else "")
         + '<p class="note">Broadside beam; the cross marks the highest sidelobe (and its '
         "repeats on a lattice). Steering the beam to (u₀, v₀) moves the visible circle by "
@@ -220,7 +232,9 @@ def build_report(
         "above marks the steering range ±θmax, where the beam peak can be put; it is not a "
         "range of observation angles: a steered beam moves its whole pattern by sin θ₀ in "
         "direction cosines, so its sidelobes fall anywhere in the visible region.</p>",
-        "scan": _img(figures.get("scan_psl"), "Worst sidelobe against scan angle")
+        "scan": ""
+        if scan_table is None
+        else _img(figures.get("scan_psl"), "Worst sidelobe against scan angle")
         + rs.scan_html(scan_table, m.get("psl_db")),
         "stress": rs.stress_html(stress),
         "convergence": _img(figures.get("convergence"), "Best PSL against evaluations")
@@ -326,22 +340,44 @@ def report_for_layout(
         metrics = score_layout(layout, frequency_hz, scan_max, q, sites=site_xy).to_dict()
     metrics = dict(metrics)
     where = _psl_where(metrics, lam, scan_max)
+    coverage = None if spec is None or not spec.has_scan_set else spec.coverage
+    limits = None if spec is None else spec.limits(len(layout))
+    reach = 1.0 + math.sin(scan_max) if coverage is None else coverage.reach
     # a little beyond the sidelobe disc, so that its edge shows on the map
-    uv = fg.uv_power_map(layout, lam, 1.04 * (1.0 + math.sin(scan_max)), scan_max=scan_max)
-    table = fg.scan_psl_table(layout, lam, scan_max, uv_map=uv)
+    uv = fg.uv_power_map(layout, lam, 1.04 * reach, scan_max=scan_max)
+    # the cone's beams (a sector's are in the built-array section)
+    table = None if coverage is not None else fg.scan_psl_table(layout, lam, scan_max, uv_map=uv)
     filled = Layout(site_xy[:, 0], site_xy[:, 1]) if site_xy is not None and len(site_xy) else None
+    sector = coverage is not None and coverage.scan.kind == "sector"
+    uv_fig = fg.fig_uv_map(
+        layout,
+        lam,
+        0.0 if sector else scan_max,  # a sector's region is drawn, not its enclosing cone
+        uv_map=uv,
+        psl_db=metrics["psl_db"],
+        marks=None if where is None else where["aliases"],
+    )
+    if (coverage is not None or limits is not None) and uv[1] is not None:
+        from .scan_views import draw_zones
+
+        cov = coverage or spec.coverage
+        draw_zones(uv_fig.axes[0], cov, limits)
+        handles, labels = uv_fig.axes[0].get_legend_handles_labels()
+        for leg in uv_fig.legends:
+            leg.remove()
+        uv_fig.legend(handles, labels, loc="outside lower center", ncols=2, fontsize=7)
     figs = {
-        "uv_map": fg.fig_uv_map(
-            layout,
-            lam,
-            scan_max,
-            uv_map=uv,
-            psl_db=metrics["psl_db"],
-            marks=None if where is None else where["aliases"],
-        ),
+        "uv_map": uv_fig,
         "cuts": fg.fig_principal_cuts(layout, lam, scan_max, filled),
-        "scan_psl": fg.fig_scan_psl(table, metrics["psl_db"]),
     }
+    if table is not None:
+        figs["scan_psl"] = fg.fig_scan_psl(table, metrics["psl_db"])
+    worst = metrics.get("mask") or {}
+    if limits is not None and worst.get("beam"):
+        from .scan_views import fig_mask_cuts, mask_cut_data
+
+        data = mask_cut_data(layout, spec.coverage, limits, worst)
+        figs["mask_cuts"] = fig_mask_cuts(data, worst)
     if history:
         figs["convergence"] = fg.fig_convergence(history, rs._get(baseline, "history"))
     if baseline is not None:
@@ -371,6 +407,23 @@ def report_for_layout(
             "pattern": "" if where is None else where["text"],
             "layout": _dims(layout, aperture),
         },
+    )
+
+
+def _mask_figure(figures) -> str:
+    """The worst beam against the sidelobe mask (in the pattern section), when there is one."""
+    if not figures.get("mask_cuts"):
+        return ""
+    return (
+        "<h3>The worst beam against the sidelobe mask</h3>"
+        + _img(figures["mask_cuts"], "The worst beam against the mask")
+        + '<p class="note">The beam that meets the mask\'s worst point, at that frequency and '
+        "at the band's edges, along the θ-cut through the worst direction, and the mask's "
+        "limit along the same cut (array factor, relative to the beam's peak). Phase "
+        "steering set at the design frequency squints the beam at the band's edges. On the "
+        "u-v map above, the dashed outlines show where each limit of the mask reaches the "
+        "broadside pattern for some beam and frequency (the mask carried over the scan set "
+        "and band), inside the sidelobe region of the scan set and band (white).</p>"
     )
 
 

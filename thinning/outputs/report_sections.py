@@ -519,6 +519,14 @@ def stress_html(stress) -> str:
         _table(
             stress["scan"],
             [
+                c
+                for c in (
+                    ("azimuth_deg", "azimuth [°]", ".1f"),
+                    ("elevation_deg", "elev. [°]", ".1f"),
+                )
+                if c[0] in stress["scan"][0]
+            ]
+            + [
                 ("theta_deg", "θ₀ [°]", ".1f"),
                 ("phi_deg", "φ₀ [°]", ".0f"),
                 ("psl_db", "PSL [dB]", ".2f"),
@@ -534,11 +542,16 @@ def stress_html(stress) -> str:
         "broadens about as 1/cos θ₀.</p>",
     ]
     if stress.get("band"):
+        sector = [
+            ("azimuth_command_deg", "azimuth [°]", ".1f"),
+            ("elevation_command_deg", "elevation [°]", ".1f"),
+        ]
         parts += [
             f"<h3>Band edges ({_e(stress['band'][0]['steering'])} steering)</h3>",
             _table(
                 stress["band"],
-                [
+                [c for c in sector if c[0] in stress["band"][0]]
+                + [
                     ("frequency_ghz", "f [GHz]", ghz),
                     ("theta_command_deg", "commanded θ [°]", ".2f"),
                     ("theta_beam_deg", "beam θ [°]", ".2f"),

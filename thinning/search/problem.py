@@ -14,6 +14,11 @@ The objective (lower is better) is
 
 with w = ``secondary_weight`` (0.05 by default): the PSL decides, and between layouts of
 nearly equal PSL the lower ASL wins.
+
+The PSL and ASL are taken over the sidelobe region of the scan set and band (``coverage``,
+:mod:`thinning.engine.coverage`). With a mask (``limits``, :mod:`thinning.engine.mask`) the
+first figure is the worst excess over it, max P·g with g = 10^{−ℓ/10}, instead of the PSL;
+with ``hpbw_max`` it carries the beamwidth penalty of :mod:`thinning.search.penalty`.
 """
 
 from __future__ import annotations
@@ -145,6 +150,9 @@ class _SwapBase:
         amp = np.sqrt(self.p0)
         self.amp = amp
         self.top = float(amp[self.inside].max()) if self.inside.any() else 0.0
+        # under a mask: g of every sample with this layout's main beam taken out
+        self.geff = region.gain.copy()
+        self.geff[win.flat] = region.effective_gain(self.removed, win.flat)
         self.wsum = float(self.weff.sum())
         self.total = float(self.weff @ self.p0)
         # for the moves' ASL: the layout's elements and its main-beam samples
@@ -210,8 +218,14 @@ class _SwapBase:
         if w not in self._ext:
             eng = self.engine
             dmax = 2.0 * w
-            low = max(0.0, (self.top - dmax) * 10 ** (-eng.margin_db / 20) - dmax)
-            near = np.flatnonzero(self.inside & (self.amp >= low))
+            if eng.region.masked:  # the same bound on p·g (engine.mask.swap_floor)
+                from ..engine.mask import swap_floor
+
+                low = swap_floor(self.p0, self.geff, self.inside, dmax, eng.margin_db)
+                near = np.flatnonzero(self.inside & (self.geff > 0) & (self.amp >= low))
+            else:
+                low = max(0.0, (self.top - dmax) * 10 ** (-eng.margin_db / 20) - dmax)
+                near = np.flatnonzero(self.inside & (self.amp >= low))
             nbr = eng.region.fast_tables(np.float64).nbr  # the 8 neighbours of each sample
             ext = np.unique(np.concatenate([near, nbr[near].ravel()]))
             self._ext[w] = ext[ext >= 0].astype(np.int64)
@@ -261,6 +275,13 @@ class ThinningProblem:
     robust_trials : int
     robust_percentile : float  [%]
     robust_seed : int
+    coverage : thinning.engine.coverage.Coverage, optional
+        The scan set and band (default: the cone ``scan_max`` at one frequency).
+    limits : thinning.engine.mask.SidelobeLimits, optional
+        A sidelobe mask: the first figure is then the worst excess over it (module
+        docstring).
+    hpbw_max : float, optional  [deg]
+        A limit on the widest half-power beamwidth, enforced by a penalty.
     """
 
     sites: Sites
@@ -279,6 +300,9 @@ class ThinningProblem:
     robust_trials: int = 16
     robust_percentile: float = 90.0
     robust_seed: int = 0
+    coverage: object = None
+    limits: object = None
+    hpbw_max: float | None = None
 
     def __post_init__(self):
         m = len(self.sites)
@@ -381,8 +405,24 @@ class ThinningProblem:
         self._robust_priority = rng.random((t, m))  # which active elements fail first
         self.robust_engine = self._make_engine(full=True)
 
+    @property
+    def masked(self) -> bool:
+        """The first figure is the worst excess over a sidelobe mask, not the PSL."""
+        return self.limits is not None and self.limits.any
+
+    def region_map(self):
+        """The search's sidelobe region and mask limits
+        (:meth:`thinning.engine.mask.RegionMap.for_search`; None: the engine's own disc)."""
+        from ..engine.mask import RegionMap
+        from ..units import wavelength as frequency_of
+
+        f0 = frequency_of(self.wavelength)
+        return RegionMap.for_search(self.coverage, self.limits, self.scan_max, f0)
+
     def _make_engine(self, full: bool = False) -> FFTPatternEngine:
         """The FFT engine on the sites' index grid (full plane for complex excitations)."""
+        if not hasattr(self, "_region_map"):
+            self._region_map = self.region_map()
         return FFTPatternEngine(
             self.sites.grid_shape,
             self.sites.lattice.grid_pitch,
@@ -391,7 +431,19 @@ class ThinningProblem:
             self.oversampling,
             linear=self.sites.lattice.kind == "linear",
             full=full,
+            region_map=self._region_map,
         )
+
+    def hpbw_penalty(self, grids) -> np.ndarray:
+        """The beamwidth penalty  [dB] of a stack of excitation grids (0 without
+        ``hpbw_max``; :mod:`thinning.search.penalty`)."""
+        if self.hpbw_max is None:
+            return np.zeros(np.shape(grids)[0])
+        if getattr(self, "_hpbw", None) is None:
+            from .penalty import BeamwidthPenalty
+
+            self._hpbw = BeamwidthPenalty(self)
+        return self._hpbw(grids)
 
     # -- genomes ----------------------------------------------------------------------------
     @property
@@ -465,7 +517,7 @@ class ThinningProblem:
         for s in range(0, masks.shape[0], BATCH):
             grids = self.sites.to_grid(masks[s : s + BATCH].astype(np.float32))
             sc = self.engine.evaluate(grids)
-            psl[s : s + BATCH] = sc.psl_db
+            psl[s : s + BATCH] = sc.psl_db + self.hpbw_penalty(grids)
             asl[s : s + BATCH] = sc.asl_db
         return Evaluation(self.combine(psl, asl), psl, asl)
 
@@ -492,6 +544,8 @@ class ThinningProblem:
                 trial_asl[s : s + BATCH] = sc.asl
             psl[i] = np.percentile(trial_psl, self.robust_percentile)
             asl[i] = 10 * np.log10(trial_asl.mean())
+        if self.hpbw_max is not None:
+            psl += self.hpbw_penalty(self.sites.to_grid(masks.astype(np.float32)))
         return Evaluation(self.combine(psl, asl), psl, asl)
 
     def gene_sites(self) -> np.ndarray:
@@ -584,6 +638,9 @@ class ThinningProblem:
             eng.fast_candidates,
             10 ** (-eng.margin_db / 10),
             tables.weight,
+            tables.gain,
+            tables.galias,
+            st.geff[ext],
             st.pos,
             st.removed,
             tables.nbr,
@@ -597,6 +654,10 @@ class ThinningProblem:
         # exact ASL: Σ w|F + Δ|² = Σ w|F|² + 2 Re Σ_s ±H(j_s, i_s) + Σ_{s,t} ±± W(j_s − j_t, ...)
         asl = (st.total + st.asl_change(rows, cols, sign)) / st.wsum / st.peak
         psl_db = 10 * np.log10(psl)
+        if self.hpbw_max is not None:
+            moved = np.repeat(st.grid[None], k_moves, axis=0)
+            np.add.at(moved, (np.arange(k_moves)[:, None], rows, cols), sign)
+            psl_db = psl_db + self.hpbw_penalty(moved)
         asl_db = 10 * np.log10(asl)
         return Evaluation(self.combine(psl_db, asl_db), psl_db, asl_db)
 

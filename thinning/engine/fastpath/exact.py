@@ -99,13 +99,33 @@ def exact_point(a, kx, ky, u, v):
 
 @njit(cache=True)
 def _refine(
-    a, kx, ky, norm, u0, v0, su0, sv0, du, dv, radius, cu, cv, linear, iterations, ws, floor
+    a,
+    kx,
+    ky,
+    norm,
+    u0,
+    v0,
+    su0,
+    sv0,
+    du,
+    dv,
+    radius,
+    cu,
+    cv,
+    linear,
+    iterations,
+    ws,
+    floor,
+    box,
+    project,
 ):
     """Trust-region Newton climb on the exact pattern from the sample at (u0, v0):
     :func:`thinning.engine.exact.refine_peaks` for one point, started at the lobe's parabolic peak
     estimate (``su0``, ``sv0`` samples away) and stopped without evaluating a step whose
     predicted gain is below 1e-6 of the power (4e-6 dB), or when twice the predicted gain
-    would leave it below ``floor`` (a lobe already found). Returns the best power and where."""
+    would leave it below ``floor`` (a lobe already found). The point stays within ``box``
+    samples of its start and, when ``project``, inside the disc. Returns the best power and
+    where."""
     if linear:
         dv = 1.0
         sv0 = 0.0
@@ -113,7 +133,7 @@ def _refine(
     sv0 = min(0.5, max(-0.5, sv0))
     bu, bv = u0 + su0 * du, v0 + sv0 * dv
     r = math.hypot(bu - cu, bv - cv)
-    if r > radius:
+    if project and r > radius:
         bu = cu + (bu - cu) * (radius / r)
         bv = cv + (bv - cv) * (radius / r)
     bp, gu, gv, huu, hvv, huv = _power6(a, kx, ky, bu, bv, norm, ws)
@@ -146,15 +166,15 @@ def _refine(
             break  # at the maximum as far as any printed figure can tell
         if negdef and bp + 2.0 * gain < floor:
             break  # this lobe stays below one already found: its exact peak does not matter
-        su = min(1.0, max(-1.0, (bu - u0) / du + d0))
+        su = min(box, max(-box, (bu - u0) / du + d0))
         tu = u0 + su * du
         if linear:
             tv = v0
         else:
-            sv = min(1.0, max(-1.0, (bv - v0) / dv + d1))
+            sv = min(box, max(-box, (bv - v0) / dv + d1))
             tv = v0 + sv * dv
         r = math.hypot(tu - cu, tv - cv)
-        if r > radius:
+        if project and r > radius:
             shrink = radius / r
             tu = cu + (tu - cu) * shrink
             tv = cv + (tv - cv) * shrink
@@ -176,17 +196,22 @@ def _refine(
 def _climb(a, kx, ky, norm, k, cand, est, floor, w_pos, removed, srows, scols, geom, linear, ws):
     """Step 4 for candidates 0..k−1 of one pattern (best estimate first): each moved to its
     alias in the disc and climbed on the exact pattern of the real grid ``a`` (|Σa|² =
-    ``norm``), skipping those whose estimate cannot reach the highest power found. Returns
-    that power (``floor`` if no candidate beat it) and where (NaN then)."""
+    ``norm``), skipping those whose estimate cannot reach the highest power found. Under a
+    mask the power is weighed by each candidate's g (``est[i, 3]``); each climb stays within
+    ``est[i, 4]`` samples of its start. Returns that power (``floor`` if no candidate beat
+    it) and where (NaN then)."""
     du, dv = geom[1], geom[2]
     radius, cu, cv = geom[7], geom[8], geom[9]
     iterations = int(geom[10])
+    project = geom[12] > 0
+    masked = geom[13] > 0
     best, bu, bv = floor, np.nan, np.nan
     for i in range(k):
         if est[i, 0] < math.log(best) - _SKIP:
             break  # this and the later (lower) lobes cannot reach the PSL found
         j = cand[i]
         u0, v0 = _alias(j, _removed_at(j, w_pos, removed), srows, scols, geom)
+        g = est[i, 3] if masked else 1.0
         p, u, v = _refine(
             a,
             kx,
@@ -204,8 +229,12 @@ def _climb(a, kx, ky, norm, k, cand, est, floor, w_pos, removed, srows, scols, g
             linear,
             iterations,
             ws,
-            best,
+            best / g if masked else best,
+            est[i, 4],
+            project,
         )
+        if masked:
+            p *= g
         if p > best:
             best, bu, bv = p, u, v
     return best, bu, bv

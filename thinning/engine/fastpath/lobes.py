@@ -53,6 +53,17 @@ def _above(p, thr, out):
 
 
 @njit(cache=True, fastmath=True)
+def _above_g(p, g, thr, out):
+    """Indices of the samples with p·g at or above ``thr`` into ``out``; how many."""
+    k = 0
+    for j in range(p.size):
+        if p[j] * g[j] >= thr:
+            out[k] = j
+            k += 1
+    return k
+
+
+@njit(cache=True, fastmath=True)
 def _total(x):
     s = 0.0
     for j in range(x.size):
@@ -67,21 +78,68 @@ def _removed_at(flat, w_pos, removed):
 
 
 @njit(cache=True)
-def _candidates(p, scan, thr, peak, weight, w_pos, removed, nbr, linear, cap, out_flat, out_est):
-    """Local maxima of pattern ``p`` among the samples ``scan`` worth refining, best first
-    (:meth:`thinning.engine.region.SampledRegion.candidates`), into ``out_flat`` and ``out_est``
-    (log of the parabolic peak estimate over the beam peak, and the vertex's offset in
-    samples along u and v). Returns how many were found."""
+def _geff(j, gain, galias, w_pos, removed):
+    """g of sample j with the main beam's own direction taken out where it removed weight."""
+    return galias[j] if _removed_at(j, w_pos, removed) > 0 else gain[j]
+
+
+@njit(cache=True)
+def _candidates(
+    p,
+    scan,
+    thr,
+    peak,
+    weight,
+    gain,
+    galias,
+    flags,
+    w_pos,
+    removed,
+    nbr,
+    linear,
+    cap,
+    out_flat,
+    out_est,
+):
+    """Local maxima of pattern ``p`` (of p·g under a mask) among the samples ``scan`` worth
+    refining, best first (:meth:`thinning.engine.region.SampledRegion.candidates`), into
+    ``out_flat`` and ``out_est`` (log of the parabolic peak estimate over the beam peak, with
+    log g under a mask; the vertex's offset in samples along u and v; g; and how far the
+    refinement may move, :meth:`thinning.engine.region.SampledRegion.refine_terms`).
+    ``flags``: 1 masked, 2 a region that is not a disc. Returns how many were found."""
+    masked = (flags & 1) != 0
+    sampled_edge = (flags & 2) != 0
     n_found = 0
     for t in range(scan.size):
         j = scan[t]
         here = p[j]
-        if here < thr or weight[j] - _removed_at(j, w_pos, removed) <= 0:
+        if weight[j] - _removed_at(j, w_pos, removed) <= 0:
+            continue
+        gj = _geff(j, gain, galias, w_pos, removed) if masked else 1.0
+        val = here * gj if masked else here
+        if val < thr:
             continue
         is_max = True
+        box = 1.0
         for o in range(8):
             m = nbr[j, o]
-            if m >= 0 and p[m] > here and weight[m] - _removed_at(m, w_pos, removed) > 0:
+            if m < 0:
+                if sampled_edge and (not linear or o == 3 or o == 4):
+                    box = 0.5
+                continue
+            inside = weight[m] - _removed_at(m, w_pos, removed) > 0
+            if sampled_edge and weight[m] <= 0:
+                box = 0.5
+            if not inside:
+                continue
+            if masked:
+                gm = _geff(m, gain, galias, w_pos, removed)
+                if p[m] * gm > val:
+                    is_max = False
+                    break
+                if gm != gj:
+                    box = 0.5
+            elif p[m] > here:
                 is_max = False
                 break
         if not is_max:
@@ -103,6 +161,8 @@ def _candidates(p, scan, thr, peak, weight, w_pos, removed, nbr, linear, cap, ou
                 else:
                     off_v = delta
         est -= math.log(peak)
+        if masked:
+            est += math.log(max(float(gj), 1e-300))
         # insert into the sorted short list (ties keep the earlier sample)
         if n_found < cap:
             k = n_found
@@ -118,5 +178,7 @@ def _candidates(p, scan, thr, peak, weight, w_pos, removed, nbr, linear, cap, ou
         out_est[k, 0] = est
         out_est[k, 1] = off_u
         out_est[k, 2] = off_v
+        out_est[k, 3] = gj
+        out_est[k, 4] = box
         out_flat[k] = j
     return n_found

@@ -9,7 +9,7 @@ import numpy as np
 from numba import njit
 
 from .exact import _climb
-from .lobes import _above, _alias, _candidates, _removed_at, _total
+from .lobes import _above, _above_g, _alias, _candidates, _removed_at, _total
 
 #: lanes of the blocked sums and maxima (lets the compiler use vector registers)
 _LANES = 16
@@ -73,6 +73,8 @@ def fast_scores(
     cap,
     margin,
     weight,
+    gain,
+    galias,
     nbr,
     srows,
     scols,
@@ -102,8 +104,9 @@ def fast_scores(
     refine : bool                refine the candidate lobes on the exact pattern
     cap : int                    candidates refined per pattern
     margin : float  [1]          candidates within this power ratio of the highest sample
-    weight, nbr, srows, scols, geom    the region (:class:`thinning.engine.region.FastTables`;
-                                 the weights in f's precision)
+    weight, gain, galias, nbr, srows, scols, geom    the region
+                                 (:class:`thinning.engine.region.FastTables`; the weights in
+                                 f's precision); under a mask the sidelobe figure is max p·g
     outer_all, w_*               its main-beam windows, each twice the last, one after the
                                  other (:attr:`thinning.engine.region.FastTables.levels`)
     kx, ky : float arrays  [rad]  the exact pattern's phase per unit u (v) of each column (row)
@@ -126,7 +129,9 @@ def fast_scores(
     ok = np.zeros(wmax, dtype=np.bool_)
     removed_all = np.zeros(wmax)
     cand = np.zeros(max(cap, 1), dtype=np.int64)
-    est = np.zeros((max(cap, 1), 3))
+    est = np.zeros((max(cap, 1), 5))
+    masked = geom[13] > 0
+    flags = (1 if masked else 0) + (2 if geom[14] > 0 else 0)
     ws = np.empty((6, grids.shape[2]))
     # buffers kept by the caller: fresh ones of this size would cost page faults per call
     p = work_p[:n]  # the current pattern's |f|²
@@ -151,14 +156,18 @@ def fast_scores(
         for i in range(nw):
             r = w_w0[a0 + i] if ok[i] else 0.0
             removed[i] = r
-            pj = float(p[w_flat[a0 + i]])
+            j = w_flat[a0 + i]
+            pj = float(p[j])
             total -= r * pj
             rsum += r
+            if masked:
+                pj = float(p[j] * (galias[j] if r > 0 else gain[j]))
             if w_weight[a0 + i] - r > 0 and pj > w_max:
                 w_max, w_arg = pj, i
         top = max(o_max, w_max)
         # the samples within the margin of the top (candidates, and the top's own place)
-        n_above = _above(p, top * margin if refine else top, above)
+        thr = top * margin if refine else top
+        n_above = _above_g(p, gain, thr, above) if masked else _above(p, thr, above)
         if o_max >= w_max:
             arg = 0
             for t in range(n_above):
@@ -182,6 +191,9 @@ def fast_scores(
             top * margin,
             peak,
             weight,
+            gain,
+            galias,
+            flags,
             w_pos,
             removed,
             nbr,

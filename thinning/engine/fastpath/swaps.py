@@ -30,6 +30,9 @@ def swap_scores(
     cap,
     margin,
     weight,
+    gain,
+    galias,
+    g_ext,
     w_pos,
     removed,
     nbr,
@@ -40,7 +43,7 @@ def swap_scores(
     ky,
     linear,
 ):
-    """Sample and refined PSL of K swap moves of one layout.
+    """Sample and refined PSL (max p·g under a mask) of K swap moves of one layout.
 
     Switching grid site (j, i) adds ±exp(−2πi(s·j/Pr + c·i/Pc)) to stored sample (s, c);
     each move's samples are updated at the few places ``ext`` where its highest or candidate
@@ -53,6 +56,9 @@ def swap_scores(
     f_ext : (E, 2) float64   the layout's transform there (real, imaginary)
     ext_row, ext_col : (E,) int   their storage row and column
     inside : (E,) bool       in the layout's sidelobe region
+    gain, galias : (N,)       g of each sample, and without its own direction
+    g_ext : (E,) float        g of the samples ``ext`` (with the layout's main beam; read
+                              under a mask)
     tw_r, tw_c : (Pr, 2), (Pc, 2) float64   exp(−2πi t/P) for t < P (real, imaginary)
     grid : (R, C) float64    the layout's excitation grid (changed in place and restored)
     rows, cols, signs : (K, S)   each move's switched grid indices and ±1 (0: padding)
@@ -74,7 +80,9 @@ def swap_scores(
     psl = np.zeros(nmove)
     sampled = np.zeros(nmove)
     cand = np.zeros(max(cap, 1), dtype=np.int64)
-    est = np.zeros((max(cap, 1), 3))
+    est = np.zeros((max(cap, 1), 5))
+    masked = geom[13] > 0
+    flags = (1 if masked else 0) + (2 if geom[14] > 0 else 0)
     ws = np.empty((6, grid.shape[1]))
     nrow = 0
     ncol = 0
@@ -111,13 +119,30 @@ def swap_scores(
                 im += ar * bi + ai * br
             v = re * re + im * im
             p[ext[e]] = v
-            if inside[e] and v > top:
+            if masked:
+                if inside[e] and v * g_ext[e] > top:
+                    top = v * g_ext[e]
+            elif inside[e] and v > top:
                 top = v
         sampled[m] = top / peak
         psl[m] = sampled[m]
         if top > 0 and cap > 0:
             k = _candidates(
-                p, ext, top * margin, peak, weight, w_pos, removed, nbr, linear, cap, cand, est
+                p,
+                ext,
+                top * margin,
+                peak,
+                weight,
+                gain,
+                galias,
+                flags,
+                w_pos,
+                removed,
+                nbr,
+                linear,
+                cap,
+                cand,
+                est,
             )
             for s in range(nsw):
                 grid[rows[m, s], cols[m, s]] += signs[m, s]
