@@ -11,6 +11,8 @@ Haupt 1994 (references.md row 13) and against the best of random draws.
 
 from __future__ import annotations
 
+import tomllib
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -23,6 +25,7 @@ from thinning.search import Tracker, run_method
 from thinning.search import anneal as sa
 from thinning.search.problem import ThinningProblem
 from thinning.search.restart import perturb
+from thinning.spec import parse_spec
 
 LAM = 0.03  # [m] 10 GHz; the 15 mm pitch is half a wavelength
 #: A time limit no test run reaches: the run has a time limit (so stall restarts it) while its
@@ -276,3 +279,21 @@ def test_a_single_feasible_layout_is_returned():
     problem = linear_problem(10, 10)  # every site on: nothing to choose
     res = run_method(problem, "anneal", 0, time_limit_s=5.0)
     assert res.mask.all() and res.stopped_by == "stall"
+
+
+# -- the spec: a time limit alone leaves the evaluations open ---------------------------------
+@pytest.mark.parametrize(
+    "search, evaluations",
+    [
+        ("time_limit_s = 30", None),  # the search uses the time it is given
+        ('time_limit_s = 30\neffort = "quick"', 2000),  # both limits, whichever comes first
+        ("time_limit_s = 30\nevaluations = 500", 500),
+        ("", 20_000),  # no time limit: the default effort, "normal"
+    ],
+)
+def test_time_limit_alone_sets_no_evaluation_limit(search, evaluations):
+    raw = tomllib.loads(
+        '[array]\nfrequency_ghz = 10.0\nlattice = "linear"\nspacing_mm = 15.0\n'
+        f"[aperture]\nsites = 40\n[budget]\nelements = 20\n[search]\n{search}\n"
+    )
+    assert parse_spec(raw).max_evaluations == evaluations
