@@ -59,12 +59,12 @@ anneal_stall_cycles : int   cycles without improvement that end a run without a 
 from __future__ import annotations
 
 import math
-import numbers
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..errors import SpecError, where
+from .options import options_from_dict
 
 __all__ = ["AnnealOptions", "Chain", "anneal", "run"]
 
@@ -92,20 +92,7 @@ class AnnealOptions:
     def from_dict(cls, options: dict | None, source: str | None = None) -> AnnealOptions:
         """Options from a dict; keys of other methods are ignored, bad values raise
         :class:`thinning.errors.SpecError` naming the ``search.<key>``."""
-        options = dict(options or {})
-        kw = {}
-        for f in fields(cls):
-            if f.name not in options:
-                continue
-            value = options[f.name]
-            is_int = f.type in ("int", int)
-            ok = isinstance(value, numbers.Real) and not isinstance(value, bool)
-            ok = ok and math.isfinite(value) and (not is_int or value == int(value))
-            if not ok:
-                kind = "a whole number" if is_int else "a number"
-                raise SpecError(f"{where(source, 'search.' + f.name)}{value!r}: expected {kind}")
-            kw[f.name] = int(value) if is_int else float(value)
-        opts = cls(**kw)
+        opts = cls(**options_from_dict(cls, options, source))
 
         def bad(name, why):
             raise SpecError(f"{where(source, 'search.' + name)}{getattr(opts, name)!r}: {why}")

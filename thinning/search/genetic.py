@@ -40,13 +40,14 @@ counts evaluations, keeps the best and spreads a batch over worker processes).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
 import numpy as np
 from deap import base, creator, tools
 
 from ..errors import SpecError, where
 from .anneal import AnnealOptions, anneal
+from .options import options_from_dict
 from .restart import IFT_SEED_FRACTION, IFT_SEED_MAX_SITES, fresh_genomes, restart_genomes
 
 __all__ = [
@@ -75,8 +76,8 @@ _NO_LIMIT = (
     "stall_generations",
     "restart_swaps",
 )
-#: Options that are real numbers (the others are whole numbers).
-_REAL = (
+#: Options that are fractions, between 0 and 1.
+_FRACTIONS = (
     "crossover_rate",
     "mutation_rate",
     "seed_density_fraction",
@@ -150,29 +151,7 @@ class GeneticOptions:
     def from_dict(cls, options: dict | None, source: str | None = None) -> GeneticOptions:
         """Options from a dict; keys of other methods are ignored, bad values raise
         :class:`thinning.errors.SpecError` naming the ``search.<key>``."""
-        options = dict(options or {})
-        kw = {}
-        for f in fields(cls):
-            if f.name not in options:
-                continue
-            value = options[f.name]
-            if f.name in _NO_LIMIT and value in (None, 0):
-                kw[f.name] = None
-                continue
-            is_int = f.name not in _REAL
-            try:
-                if is_int:
-                    if isinstance(value, bool) or float(value) != int(value):
-                        raise ValueError
-                    value = int(value)
-                else:
-                    value = float(value)
-            except (TypeError, ValueError):
-                kind = "an integer" if is_int else "a number"
-                raise SpecError(
-                    f"{where(source, 'search.' + f.name)}{value!r}: expected {kind}"
-                ) from None
-            kw[f.name] = value
+        kw = options_from_dict(cls, options, source, _NO_LIMIT)
         opts = cls(**kw)
         opts._check(source)
         return opts
@@ -188,7 +167,7 @@ class GeneticOptions:
             bad("tournament", f"must be between 1 and the population ({self.population})")
         if not 0 <= self.elite < self.population:
             bad("elite", f"must be between 0 and the population − 1 ({self.population - 1})")
-        for name in _REAL:
+        for name in _FRACTIONS:
             if getattr(self, name) is not None and not 0.0 <= getattr(self, name) <= 1.0:
                 bad(name, "is a fraction, between 0 and 1")
         if self.seed_density_fraction + (self.seed_ift_fraction or 0.0) > 1.0:
