@@ -15,42 +15,21 @@ import tomllib
 
 import numpy as np
 import pytest
+from helpers import linear_problem, pinned_ends, planar_problem
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from thinning.errors import SpecError
-from thinning.geometry.aperture import Aperture
-from thinning.geometry.lattice import Lattice
 from thinning.search import Tracker, run_method
 from thinning.search import anneal as sa
-from thinning.search.problem import ThinningProblem
 from thinning.search.restart import perturb
 from thinning.spec import parse_spec
 
-LAM = 0.03  # [m] 10 GHz; the 15 mm pitch is half a wavelength
 #: A time limit no test run reaches: the run has a time limit (so stall restarts it) while its
 #: evaluation limit ends it, which keeps it reproducible.
 NEVER_S = 1e6
 #: Options that make the genetic search stall and restart often in a short run.
 RESTARTING = {"population": 16, "stall_generations": 3, "polish_anneal": 200}
-
-
-def linear_problem(m, n, **kw):
-    sites = Lattice.from_mm("linear", [15.0]).linear_sites(m)
-    return ThinningProblem(sites, n, LAM, 0.0, **kw)
-
-
-def planar_problem(side_mm, n, **kw):
-    h = side_mm / 2
-    ap = Aperture.from_mm([[-h, -h], [h, -h], [h, h], [-h, h]])
-    sites = Lattice.from_mm("rectangular", [15.0, 15.0]).sites_in(ap)
-    return ThinningProblem(sites, n, LAM, 0.0, **kw)
-
-
-def _ends(m):
-    pinned = np.zeros(m, bool)
-    pinned[[0, -1]] = True
-    return pinned
 
 
 def _trajectory(res):
@@ -137,7 +116,7 @@ def test_linear_runs_keep_budget_pins_forbidden_and_symmetry(method, symmetry):
     m, n = 40, 24
     forbidden = np.zeros(m, bool)
     forbidden[5] = True
-    problem = linear_problem(m, n, symmetry=symmetry, pinned=_ends(m), forbidden=forbidden)
+    problem = linear_problem(m, n, symmetry=symmetry, pinned=pinned_ends(m), forbidden=forbidden)
     res = run_method(problem, method, 3, RESTARTING, max_evaluations=4000, time_limit_s=NEVER_S)
     mask = res.mask
     assert mask.sum() == n and mask[0] and mask[-1] and not mask[5]
@@ -196,7 +175,7 @@ def test_chain_figures_equal_a_full_evaluation(symmetry):
     # move. The ends are pinned, as in Haupt 1994: a move keeps its base's main-beam cut,
     # which holds while the aperture keeps its length.
     m = 80
-    problem = linear_problem(m, 50, symmetry=symmetry, pinned=_ends(m))
+    problem = linear_problem(m, 50, symmetry=symmetry, pinned=pinned_ends(m))
     with Tracker(problem) as tracker:
         chain = sa.Chain(problem, tracker, np.random.default_rng(0), sa.AnnealOptions())
         g = problem.random_genomes(np.random.default_rng(1), 1)
