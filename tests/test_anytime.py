@@ -206,7 +206,7 @@ def test_best_so_far_has_the_figures_of_a_full_evaluation():
 def test_cold_chain_never_accepts_a_worse_layout():
     # Metropolis: P(accept Δ > 0) = exp(−Δ/T) → 0 as T → 0 (Kirkpatrick et al. 1983)
     problem = linear_problem(60, 30)
-    opts = sa.AnnealOptions(anneal_hot_db=1e-9, anneal_cold_db=1e-9)
+    opts = sa.AnnealOptions(anneal_hot_db=1e-9, anneal_reheat_db=1e-9, anneal_cold_db=1e-9)
     with Tracker(problem) as tracker:
         chain = sa.Chain(problem, tracker, np.random.default_rng(3), opts)
         g = problem.random_genomes(np.random.default_rng(4), 1)[0]
@@ -245,7 +245,8 @@ def test_anneal_beats_best_of_random_at_equal_evaluations():
         ({"anneal_batch": 0}, "search.anneal_batch"),
         ({"anneal_local": 1.5}, "search.anneal_local"),
         ({"anneal_hot_db": "hot"}, "search.anneal_hot_db"),
-        ({"anneal_cold_db": 1.0}, "search.anneal_cold_db"),
+        ({"anneal_cold_db": 0.0}, "search.anneal_cold_db"),
+        ({"anneal_reheat_db": 0.001}, "search.anneal_reheat_db"),
         ({"anneal_cycle": 2.5}, "search.anneal_cycle"),
     ],
 )

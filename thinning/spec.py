@@ -62,6 +62,7 @@ METHOD_OPTIONS = {
     "anneal_near",
     "anneal_hot_db",
     "anneal_cold_db",
+    "anneal_reheat_db",
     "anneal_cycle",
     "anneal_stall_cycles",
 }
