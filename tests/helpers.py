@@ -71,3 +71,31 @@ def run_cli(capsys, *args):
     code = main([str(a) for a in args])
     out = capsys.readouterr()
     return code, out.out, out.err
+
+
+def linear_problem(m, n, **kw):
+    """m half-wavelength sites on a line at 10 GHz (15 mm pitch), n elements, broadside."""
+    from thinning.search.problem import ThinningProblem
+
+    sites = Lattice.from_mm("linear", [15.0]).linear_sites(m)
+    return ThinningProblem(sites, n, 0.03, 0.0, **kw)
+
+
+def planar_problem(side_mm, n, **kw):
+    """A square panel of side ``side_mm`` on a half-wavelength square lattice at 10 GHz,
+    n elements, broadside."""
+    from thinning.search.problem import ThinningProblem
+
+    h = side_mm / 2
+    ap = Aperture.from_mm([[-h, -h], [h, -h], [h, h], [-h, h]])
+    sites = Lattice.from_mm("rectangular", [15.0, 15.0]).sites_in(ap)
+    return ThinningProblem(sites, n, 0.03, 0.0, **kw)
+
+
+def pinned_ends(m):
+    """A mask of m sites with the two end sites pinned."""
+    import numpy as np
+
+    pinned = np.zeros(m, bool)
+    pinned[[0, -1]] = True
+    return pinned

@@ -10,36 +10,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from deap import creator, tools
+from helpers import linear_problem, pinned_ends, planar_problem
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from thinning.errors import SpecError
-from thinning.geometry.aperture import Aperture
-from thinning.geometry.lattice import Lattice
 from thinning.search import Tracker, run_method
 from thinning.search import genetic as ga
-from thinning.search.problem import ThinningProblem
-
-LAM = 0.03  # [m] 10 GHz; the 15 mm pitch is half a wavelength
-
-
-def linear_problem(m, n, **kw):
-    sites = Lattice.from_mm("linear", [15.0]).linear_sites(m)
-    return ThinningProblem(sites, n, LAM, 0.0, **kw)
-
-
-def planar_problem(side_mm, n, **kw):
-    h = side_mm / 2
-    ap = Aperture.from_mm([[-h, -h], [h, -h], [h, h], [-h, h]])
-    sites = Lattice.from_mm("rectangular", [15.0, 15.0]).sites_in(ap)
-    return ThinningProblem(sites, n, LAM, 0.0, **kw)
-
-
-def _ends(m):
-    pinned = np.zeros(m, bool)
-    pinned[[0, -1]] = True
-    return pinned
-
 
 # Problems for the operator property tests, built once (building one plans its FFT).
 # 9 × 9 sites with mirror-xy: orbits of 1 (centre), 2 (centre lines) and 4 sites.
@@ -110,7 +87,7 @@ def test_linear_run_keeps_budget_pins_and_mirror_symmetry():
     m, n = 40, 24
     forbidden = np.zeros(m, bool)
     forbidden[5] = True
-    problem = linear_problem(m, n, symmetry="mirror-x", pinned=_ends(m), forbidden=forbidden)
+    problem = linear_problem(m, n, symmetry="mirror-x", pinned=pinned_ends(m), forbidden=forbidden)
     res = run_method(problem, "genetic", 3, max_evaluations=1500)
     mask = res.mask
     assert mask.sum() == n
@@ -225,7 +202,7 @@ def test_final_polish_ends_on_a_swap_local_optimum():
     assert _no_single_swap_improves(problem, res)
 
 
-def test_polish_of_a_sampled_neighbourhood_ends(monkeypatch):
+def test_polish_of_a_sampled_neighbourhoodpinned_ends(monkeypatch):
     # a neighbourhood above PERMUTE_MAX is sampled with replacement; the polish must still end
     monkeypatch.setattr(ga, "PERMUTE_MAX", 10)
     problem = linear_problem(30, 12)

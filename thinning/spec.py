@@ -56,6 +56,17 @@ METHOD_OPTIONS = {
     "seed_ift_fraction",
     "polish_fraction",
     "local_batch",
+    "polish_anneal",
+    "restart_perturbed_fraction",
+    "restart_swaps",
+    "anneal_batch",
+    "anneal_local",
+    "anneal_near",
+    "anneal_hot_db",
+    "anneal_cold_db",
+    "anneal_reheat_db",
+    "anneal_cycle",
+    "anneal_stall_cycles",
 }
 
 KEYS = {
@@ -148,7 +159,7 @@ class Spec:
     element_exponent: float
     method: str
     seed: int
-    max_evaluations: int
+    max_evaluations: int | None
     time_limit_s: float | None
     objective: str
     secondary_weight: float
@@ -509,6 +520,8 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
     tl = _get(raw, "search", "time_limit_s", src)
     if tl is not None:
         tl = _number(tl, src, "search.time_limit_s", lo=0, lo_open=True)
+        if evals is None and "effort" not in raw.get("search", {}):
+            max_evals = None  # a time limit alone: the search uses the time it is given
     objective = _choice(
         _get(raw, "search", "objective", src, default="psl"), OBJECTIVES, src, "search.objective"
     )

@@ -40,7 +40,7 @@ __all__ = [
     "method_module",
 ]
 
-METHODS = ("random", "density", "genetic", "ift")
+METHODS = ("random", "density", "genetic", "ift", "anneal")
 
 #: Reasons to stop that depend on the machine's speed (wall time, a Ctrl-C): a run that ends
 #: by any other (its evaluation budget, a stall, its generations or trials) is reproducible.
@@ -237,6 +237,13 @@ class Tracker:
     def should_stop(self) -> bool:
         return self.stop_reason() is not None
 
+    @property
+    def stall_ends_run(self) -> bool:
+        """Whether a search that has stopped improving should end: only a run without a time
+        limit ends on a stall; with one, the search restarts and uses the time it was given
+        (the limit itself ends it)."""
+        return self.time_limit_s is None
+
     # -- evaluation -----------------------------------------------------------------------
     @contextlib.contextmanager
     def _first_call(self, kind: str):
@@ -298,13 +305,25 @@ class Tracker:
     def evaluate_swaps(self, base, off_genes, on_genes, genomes=None) -> Evaluation:
         """Evaluate K swap moves of ``base`` (gene ``off_genes[k]`` off, ``on_genes[k]`` on)
         by updating its transform (:meth:`ThinningProblem.evaluate_swaps`), in this process;
-        counted and tracked like :meth:`evaluate`."""
+        counted and tracked like :meth:`evaluate`. The moves that would improve on the best so
+        far are evaluated in full (not counted again), so the best so far and its figures
+        are always those of a full evaluation."""
         base = np.asarray(base, dtype=bool)
         if genomes is None:
             genomes = self.problem.swapped(base, off_genes, on_genes)
+        genomes = np.asarray(genomes, dtype=bool)
         with self._first_call("swaps"):
             ev = self.problem.evaluate_swaps(base, off_genes, on_genes)
-        self._account(np.asarray(genomes, dtype=bool), ev)
+        # a move is scored with its base layout's main-beam cut; one that moves the first
+        # null (an element moved at the end of the aperture) can come out too low, so a move
+        # that would become the best so far is evaluated in full and keeps those figures
+        new_best = np.flatnonzero(ev.objective < self.best[0])
+        if new_best.size:
+            full = self.problem.evaluate(genomes[new_best])
+            ev.objective[new_best] = full.objective
+            ev.psl_db[new_best] = full.psl_db
+            ev.asl_db[new_best] = full.asl_db
+        self._account(genomes, ev)
         return ev
 
     def _account(self, g, ev):

@@ -10,16 +10,24 @@ A steady population of genomes (one boolean gene per free symmetry orbit, exactl
 * count-preserving mutation: a few swaps of an on gene with an off gene of the same class,
 * local refinement of the best genome every ``local_every`` generations: first-improvement
   hill climbing over single swaps, proposed in batches that are evaluated in one call,
-* a final polish of the best genome by the same hill climbing, with the last
-  ``polish_fraction`` of an evaluation budget, or after the search has stalled, until no single
-  swap improves it.
+* a polish of the best genome, with the last ``polish_fraction`` of an evaluation budget or
+  when the search has stalled: a cycle of simulated annealing over swaps
+  (:mod:`thinning.search.anneal`, ``polish_anneal`` evaluations), then the same hill climbing
+  until no single swap improves it,
+* restarts when the search stalls with time left (a run with a time limit): the polish, then a
+  new population of the elites, perturbed elites and fresh starts
+  (:mod:`thinning.search.restart`). A polish that improved the best makes the next one anneal
+  twice as long (on a linear array the annealing keeps finding better layouts; on planar
+  panels the new populations do). Stall ends only a run without a time limit.
 
 The genetic part follows the binary-GA thinning of Haupt, "Thinned arrays using genetic
 algorithms", IEEE TAP 42(7), 1994 (which had no count constraint: it penalised or accepted
 the element count); the exact budget, the operators that keep it and the swap refinement are
 this module's own. Every random draw comes from the ``rng`` passed to :func:`run`, so a run
-is reproducible for a given seed (and, because the tracker evaluates fixed batches, for any
-number of worker processes).
+is reproducible for a given seed and evaluation limit (and, because the tracker evaluates fixed
+batches, for any number of worker processes). Nothing but the stopping depends on the clock:
+a run with a time limit is the beginning of a longer run with the same seed, so more time never
+gives a worse layout.
 
 The DEAP wiring follows DEAP's own conventions: the ``creator`` classes are made once by
 :func:`deap_classes`; individuals are numpy bool arrays (``creator`` subclasses of
@@ -32,12 +40,15 @@ counts evaluations, keeps the best and spreads a batch over worker processes).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
 import numpy as np
 from deap import base, creator, tools
 
 from ..errors import SpecError, where
+from .anneal import AnnealOptions, anneal
+from .options import options_from_dict
+from .restart import IFT_SEED_FRACTION, IFT_SEED_MAX_SITES, fresh_genomes, restart_genomes
 
 __all__ = [
     "GeneticOptions",
@@ -58,7 +69,22 @@ STALL_TOL = 1e-6
 #: repetition; larger ones are sampled with replacement, and a genome counts as a local
 #: optimum once as many swaps as the neighbourhood holds have failed to improve it.
 PERMUTE_MAX = 1 << 20
-_NO_LIMIT = ("local_swaps", "local_batch", "generations", "stall_generations")
+_NO_LIMIT = (
+    "local_swaps",
+    "local_batch",
+    "generations",
+    "stall_generations",
+    "restart_swaps",
+)
+#: Options that are fractions, between 0 and 1.
+_FRACTIONS = (
+    "crossover_rate",
+    "mutation_rate",
+    "seed_density_fraction",
+    "seed_ift_fraction",
+    "polish_fraction",
+    "restart_perturbed_fraction",
+)
 
 
 @dataclass
@@ -76,15 +102,25 @@ class GeneticOptions:
     mutation_swaps : int   a mutation makes 1 … ``mutation_swaps`` swaps (uniformly)
     seed_density_fraction : float  [1]   share of the first population drawn from the
         density taper (:mod:`thinning.search.density`)
-    seed_ift_fraction : float  [1]   share of the first population from short iterative
-        Fourier trials (:mod:`thinning.search.ift`); the rest is drawn uniformly
+    seed_ift_fraction : float or None  [1]   share of the first population (and of the fresh
+        starts of a restart) from short iterative Fourier trials
+        (:mod:`thinning.search.ift`); the rest is drawn uniformly. None (the default):
+        :data:`IFT_SEED_FRACTION` for problems of up to :data:`IFT_SEED_MAX_SITES` sites, 0 for
+        larger ones
     local_every : int   generations between two refinements of the best genome (0 = never)
     local_swaps : int or None   evaluations per refinement (None or 0 = 2 × population)
     local_batch : int or None   swaps proposed per hill-climbing step (None or 0 = population)
     polish_fraction : float  [1]   share of an evaluation budget kept for the final polish
     generations : int or None   stop after this many generations (None or 0 = no limit)
-    stall_generations : int or None   stop after this many generations without improvement
-        of the best objective (None or 0 = never)
+    stall_generations : int or None   generations without improvement of the best objective
+        after which the search polishes its best genome and, with a time limit, restarts
+        (without one, stops) (None or 0 = never)
+    polish_anneal : int   evaluations of the annealing cycle of the first polish (0 = hill
+        climbing only); doubled after each polish that improved the best
+    restart_perturbed_fraction : float  [1]   share of a restarted population made of
+        perturbed elites; the rest are fresh starts
+    restart_swaps : int or None   most swaps of a perturbed elite (None or 0 = 5 % of the
+        genes on, at least 2)
     """
 
     population: int = 64
@@ -94,47 +130,28 @@ class GeneticOptions:
     mutation_rate: float = 0.5
     mutation_swaps: int = 2
     seed_density_fraction: float = 0.5
-    seed_ift_fraction: float = 0.0
+    seed_ift_fraction: float | None = None
     local_every: int = 5
     local_swaps: int | None = None
     local_batch: int | None = None
     polish_fraction: float = 0.1
     generations: int | None = None
     stall_generations: int | None = 50
+    polish_anneal: int = 20_000
+    restart_perturbed_fraction: float = 0.5
+    restart_swaps: int | None = None
+
+    def ift_share(self, problem) -> float:
+        """The share of iterative-Fourier starts for ``problem`` (resolving the default)."""
+        if self.seed_ift_fraction is not None:
+            return self.seed_ift_fraction
+        return IFT_SEED_FRACTION if len(problem.sites) <= IFT_SEED_MAX_SITES else 0.0
 
     @classmethod
     def from_dict(cls, options: dict | None, source: str | None = None) -> GeneticOptions:
         """Options from a dict; keys of other methods are ignored, bad values raise
         :class:`thinning.errors.SpecError` naming the ``search.<key>``."""
-        options = dict(options or {})
-        kw = {}
-        for f in fields(cls):
-            if f.name not in options:
-                continue
-            value = options[f.name]
-            if f.name in _NO_LIMIT and value in (None, 0):
-                kw[f.name] = None
-                continue
-            is_int = f.name not in (
-                "crossover_rate",
-                "mutation_rate",
-                "seed_density_fraction",
-                "seed_ift_fraction",
-                "polish_fraction",
-            )
-            try:
-                if is_int:
-                    if isinstance(value, bool) or float(value) != int(value):
-                        raise ValueError
-                    value = int(value)
-                else:
-                    value = float(value)
-            except (TypeError, ValueError):
-                kind = "an integer" if is_int else "a number"
-                raise SpecError(
-                    f"{where(source, 'search.' + f.name)}{value!r}: expected {kind}"
-                ) from None
-            kw[f.name] = value
+        kw = options_from_dict(cls, options, source, _NO_LIMIT)
         opts = cls(**kw)
         opts._check(source)
         return opts
@@ -150,25 +167,21 @@ class GeneticOptions:
             bad("tournament", f"must be between 1 and the population ({self.population})")
         if not 0 <= self.elite < self.population:
             bad("elite", f"must be between 0 and the population − 1 ({self.population - 1})")
-        for name in (
-            "crossover_rate",
-            "mutation_rate",
-            "seed_density_fraction",
-            "seed_ift_fraction",
-            "polish_fraction",
-        ):
-            if not 0.0 <= getattr(self, name) <= 1.0:
+        for name in _FRACTIONS:
+            if getattr(self, name) is not None and not 0.0 <= getattr(self, name) <= 1.0:
                 bad(name, "is a fraction, between 0 and 1")
-        if self.seed_density_fraction + self.seed_ift_fraction > 1.0:
+        if self.seed_density_fraction + (self.seed_ift_fraction or 0.0) > 1.0:
             bad("seed_ift_fraction", "with seed_density_fraction, more than the whole population")
         if self.mutation_swaps < 1:
             bad("mutation_swaps", "a mutation makes at least one swap")
         if self.local_every < 0:
             bad("local_every", "must be ≥ 0 (0 = no refinement)")
-        for name in ("local_swaps", "local_batch", "generations", "stall_generations"):
+        for name in _NO_LIMIT:
             value = getattr(self, name)
             if value is not None and value < 1:
                 bad(name, "must be ≥ 1 (or left out)")
+        if self.polish_anneal < 0:
+            bad("polish_anneal", "must be ≥ 0 (0 = hill climbing only)")
 
 
 # -- DEAP wiring ---------------------------------------------------------------------------------
@@ -392,34 +405,6 @@ class _Climber:
 
 
 # -- the search ----------------------------------------------------------------------------------
-def _seed_population(problem, rng, k, fraction, options, ift_fraction=0.0) -> np.ndarray:
-    """k genomes: ``round(fraction·k)`` drawn from the density taper, ``round(ift_fraction·k)``
-    from short iterative Fourier trials, the rest uniformly.
-
-    Falls back to uniform draws if :mod:`thinning.search.density` is not available.
-    """
-    n_ift = int(round(ift_fraction * k))
-    parts = []
-    if n_ift > 0:
-        from .ift import ift_genomes
-
-        parts.append(np.asarray(ift_genomes(problem, rng, n_ift, options), dtype=bool))
-    k -= n_ift
-    n_density = int(round(fraction * k))
-    if n_density > 0:
-        try:
-            from . import density
-        except ImportError:
-            density = None
-        if density is not None:
-            p = density.taper_probabilities(problem, options)
-            parts.append(np.asarray(density.draw(problem, p, rng, n_density), dtype=bool))
-        else:
-            n_density = 0
-    parts.append(problem.random_genomes(rng, k - n_density))
-    return np.concatenate(parts, axis=0)
-
-
 def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
     """Run the genetic search until a limit; see the module docstring.
 
@@ -455,8 +440,8 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
 
     pop = [
         tb.individual(g)
-        for g in _seed_population(
-            problem, rng, pop_size, opts.seed_density_fraction, options, opts.seed_ift_fraction
+        for g in fresh_genomes(
+            problem, rng, pop_size, opts.seed_density_fraction, options, opts.ift_share(problem)
         )
     ]
     _evaluate(tracker, pop)
@@ -464,7 +449,9 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
     hof.update(pop)
     best = hof[0].fitness.values[0]
     tracker.record(generation=0)
-    gen, stall = 0, 0
+    anneal_opts = AnnealOptions.from_dict(options, problem.source)
+    gen, stall, restarts = 0, 0, 0
+    polish_len = opts.polish_anneal
     while True:
         reason = None
         while True:
@@ -488,19 +475,75 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
             best = min(best, now)
             tracker.record(generation=gen)
 
-        # polish the best genome until it is a local optimum or the budget is spent
-        g, value = np.asarray(hof[0]), hof[0].fitness.values[0]
-        done = False
-        while not done and not tracker.should_stop():
-            left = tracker.remaining
-            g, value, done = climber.climb(g, value, math.inf if left == np.inf else int(left))
-        if value < hof[0].fitness.values[0]:
-            _insert(tb, pop, hof, g, value)
-            best = min(best, value)
+        before = tracker.best[0]
+        _polish(tb, pop, hof, climber, polish_len, anneal_opts)
+        if tracker.best[0] < before - STALL_TOL:
+            polish_len *= 2  # the polish paid off: anneal longer next time
+        best = min(best, hof[0].fitness.values[0])
         tracker.record(generation=gen, polish=True)
+        if reason == "stall" and not tracker.stall_ends_run and not tracker.should_stop():
+            # stalled with time left: start again from the elites, perturbed elites and
+            # fresh starts
+            restarts += 1
+            pop = _restart(tb, hof, problem, rng, opts, options)
+            _evaluate(tracker, pop)
+            pop = [ind for ind in pop if ind.fitness.valid]
+            hof.update(pop)
+            best, stall = hof[0].fitness.values[0], 0
+            tracker.record(generation=gen, restart=restarts)
+            continue
         if reason is not None or tracker.should_stop():
             return tracker.stop_reason() or reason
         reserve = 0  # polished to a local optimum with budget left: evolve on
+
+
+def _polish(tb, pop, hof, climber, anneal_evaluations, anneal_opts):
+    """Polish the best genome: an annealing cycle over swaps, then hill climbing until it is a
+    local optimum (or a limit is reached). A cycle that would overrun an evaluation limit is
+    shortened to what is left, unless the run also has a time limit (then nothing in the
+    schedule depends on the limits, and a longer run continues a shorter one)."""
+    tracker = climber.tracker
+    left = tracker.remaining
+    if tracker.time_limit_s is None and not math.isinf(left):
+        anneal_evaluations = min(anneal_evaluations, int(left))
+    if anneal_evaluations > 0 and not tracker.should_stop():
+        top = hof[0]
+        anneal(
+            tracker.problem,
+            tracker,
+            climber.rng,
+            top,
+            top.fitness.values[0],
+            anneal_evaluations,
+            anneal_opts,
+        )
+        if tracker.best[0] < top.fitness.values[0]:  # the cycle's best is the tracker's
+            _insert(tb, pop, hof, tracker.best_genome, tracker.best[0])
+    g, value = np.asarray(hof[0]), hof[0].fitness.values[0]
+    done = False
+    while not done and not tracker.should_stop():
+        left = tracker.remaining
+        g, value, done = climber.climb(g, value, math.inf if left == np.inf else int(left))
+    if value < hof[0].fitness.values[0]:
+        _insert(tb, pop, hof, g, value)
+
+
+def _restart(tb, hof, problem, rng, opts, options):
+    """A new population: the elites, perturbed elites and fresh starts (not yet evaluated)."""
+    elites = [tb.clone(ind) for ind in hof[: max(1, opts.elite)]]
+    swaps = opts.restart_swaps or max(2, round(0.05 * int(problem.class_ones.sum())))
+    genomes = restart_genomes(
+        problem,
+        rng,
+        [np.asarray(e) for e in elites],
+        opts.population - len(elites),
+        opts.restart_perturbed_fraction,
+        swaps,
+        lambda n: fresh_genomes(
+            problem, rng, n, opts.seed_density_fraction, options, opts.ift_share(problem)
+        ),
+    )
+    return elites + [tb.individual(g) for g in genomes]
 
 
 def _generation(tb, pop, hof, opts, rng, tracker):
