@@ -40,7 +40,7 @@ def design(spec_toml, out_dir, workers, quiet):
     spec = load_spec(spec_toml)
     for w in spec.warnings:
         click.echo(f"thinning design: warning: {w}", err=True)
-    progress = None if quiet else format_progress(spec.method)
+    progress = None if quiet else format_progress(spec.method_label)
     result = run_design(
         spec, out_dir, workers=workers, progress=progress, extra_outputs=_extra_outputs()
     )

@@ -30,6 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from ..io.atomic import atomic_write
+from .dxf_bulk import BULK_ELEMENTS, element_entities, insert_entities, reserve_handles
 
 __all__ = ["write_layout_dxf", "DXF_LAYERS", "DXF_VERSION"]
 
@@ -146,12 +147,13 @@ def write_layout_dxf(
         xmin, ymin, xmax, ymax = (b * 1e3 for b in aperture.bounds)
         lo, hi = np.minimum(lo, [xmin, ymin]), np.maximum(hi, [xmax, ymax])
 
-    for x, y in xy:
+    bulk = len(xy) > BULK_ELEMENTS  # the element entities written as text (dxf_bulk)
+    for x, y in xy if not bulk else ():
         centre = (float(x), float(y))
         msp.add_circle(centre, r, dxfattribs={"layer": "ELEMENTS"})
         msp.add_point(centre, dxfattribs={"layer": "ELEMENTS"})
 
-    if labels:
+    if labels and not bulk:
         h = d / 3.0
         off = r * np.sqrt(0.5)  # on the circle, at 45° to the upper right
         for (x, y), text in zip(xy, layout.element_ids, strict=True):
@@ -180,7 +182,16 @@ def write_layout_dxf(
         height=1.1 * float(max(top - lo[1], (hi[0] - lo[0]) / 1.5)), center=centre
     )
 
+    if bulk:
+        first = reserve_handles(doc, len(xy) * (3 if labels else 2))
+        ids = [_one_line(t) for t in layout.element_ids] if labels else None
+        entities = element_entities(
+            xy, r, ids, msp.block_record_handle, first, r * np.sqrt(0.5), d / 3.0
+        )
     stream = io.StringIO()
     doc.write(stream)
-    atomic_write(path, doc.encode(stream.getvalue()))
+    text = stream.getvalue()
+    if bulk:
+        text = insert_entities(text, entities)
+    atomic_write(path, doc.encode(text))
     return path

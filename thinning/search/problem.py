@@ -261,6 +261,9 @@ class ThinningProblem:
     robust_trials : int
     robust_percentile : float  [%]
     robust_seed : int
+    envelope : thinning.search.envelope.Envelope, optional
+        The density envelope the search started from, with its bound (set by
+        :func:`thinning.search.density.optimised_envelope`).
     """
 
     sites: Sites
@@ -279,6 +282,7 @@ class ThinningProblem:
     robust_trials: int = 16
     robust_percentile: float = 90.0
     robust_seed: int = 0
+    envelope: object = None
 
     def __post_init__(self):
         m = len(self.sites)
