@@ -60,7 +60,17 @@ from ..errors import SpecError, where
 from .random import DEFAULT_BATCH, _positive_int, best_of_draws
 from .sampling import systematic
 
-__all__ = ["TAPERS", "run", "taper_probabilities", "taper_values", "draw"]
+__all__ = [
+    "TAPERS",
+    "LARGE_SITES",
+    "run",
+    "taper_probabilities",
+    "taper_values",
+    "draw",
+    "optimised_envelope",
+    "starting_layouts",
+    "default_taper",
+]
 
 TAPERS = ("lp", "taylor", "uniform")
 #: From this many candidate sites on, the optimised envelope seeds every method and the spec's
@@ -269,7 +279,7 @@ def optimised_envelope(problem, options: dict | None = None):
     return cache[key]
 
 
-def _starts(problem, p, rng, draws: int) -> np.ndarray:
+def starting_layouts(problem, p, rng, draws: int) -> np.ndarray:
     """The starting layouts of a polished run: error diffusion in eight scans, eight dithered
     ones, and ``draws`` random systematic draws."""
     from .sampling import ORIENTATIONS, error_diffusion
@@ -329,7 +339,7 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
     src = getattr(problem, "source", None)
     _positive_int(options, "batch", DEFAULT_BATCH, src)
     draws = _positive_int(options, "draws", START_DRAWS, src)
-    starts = _starts(problem, p, rng, draws)
+    starts = starting_layouts(problem, p, rng, draws)
     if math.isfinite(tracker.remaining):
         starts = starts[: max(1, int(tracker.remaining))]
     ev = tracker.evaluate(starts)

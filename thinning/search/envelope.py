@@ -39,8 +39,8 @@ tangent half-plane at arg z for every lobe of the full transform of the envelope
 s (the transform covers the whole region, aliases included), until no lobe exceeds s by more
 than 0.5 % in amplitude.
 
-The main-beam factor β is *chosen by the method* among :data:`BEAM_FACTORS`: a wider
-exclusion lowers the LP's optimum but leaves the first sidelobe unconstrained once the
+The main-beam factor β is *chosen by the method* among :data:`BEAM_FACTORS` (1.2 to 1.6): a
+wider exclusion lowers the LP's optimum but leaves the first sidelobe unconstrained once the
 envelope's real first null falls inside it, so each β is judged by the envelope bound with the
 tool's own main-beam rule (along each ray to the first null), and the best is kept. The
 **envelope bound** is the peak of E|AF|²/N² over the sidelobe region (refined on the exact
@@ -71,8 +71,11 @@ __all__ = [
     "uniform_null",
 ]
 
-#: Main-beam radii tried, in units of the uniform aperture's first null.
-BEAM_FACTORS = (1.1, 1.2, 1.3, 1.4, 1.5, 1.6, 1.7, 1.8, 2.0)
+#: Main-beam radii tried, in units of the uniform aperture's first null. Wider beams lower the
+#: bound further at low fill (a denser core, a lower random floor) but cost beamwidth that a
+#: thinned array is expected to keep (references.md row 15); ``envelope_beam`` asks for any
+#: radius up to 4.
+BEAM_FACTORS = (1.2, 1.3, 1.4, 1.5, 1.6)
 #: Lattice directions (a, b) of the rays whose exact projections seed the programme.
 RAYS = ((1, 0), (0, 1), (1, 1), (1, -1), (2, 1), (1, 2), (2, -1), (1, -2))
 #: Radial step of the ray points, in units of the uniform first null: fine near the main beam,
@@ -90,7 +93,6 @@ START_ROWS, ROW_ROUNDS = 400, 12
 SETTLED = 1e-3
 #: Rows kept before those far from binding are dropped.
 MAX_ROWS = 6000
-DEBUG = False
 #: Below this many sites the main-beam radius is not searched (the middle factor is taken)
 #: and the programme takes one cutting round only.
 SEARCH_BEAM_SITES = 2048
@@ -218,7 +220,7 @@ def _normalised_radius(problem) -> tuple[np.ndarray, np.ndarray]:
     return np.minimum(rho, 1.0), th
 
 
-def _outline_is_round(problem, rho_th) -> bool:
+def _outline_is_round(problem) -> bool:
     """True when the outline's reach varies by under 3 % with direction and no site inside it
     is missing (no holes): rings alone then follow it."""
     sites = problem.sites
@@ -620,8 +622,6 @@ class _Programme:
             self.settle()
             if self.s <= before * (1.0 + SETTLED):
                 break
-        if DEBUG:
-            print("programme", self.beam, 20 * math.log10(self.s), self.rows.shape, self.pool.shape)
 
     def genes(self) -> np.ndarray:
         return _gene_probabilities(self.problem, self.basis, self.q)
@@ -655,9 +655,8 @@ def lp_envelope(problem, options: dict | None = None, taylor_genes=None) -> Enve
     if rings is None:
         rings = int(np.clip(round(across / 3), 12, 96))
     sectors = _int_option(options, "envelope_sectors", src, 1, 32)
-    rho_th = None
     if sectors is None:
-        sectors = 1 if _outline_is_round(problem, rho_th) else 4
+        sectors = 1 if _outline_is_round(problem) else 4
     if sites.lattice.kind == "linear":
         sectors = 1
     beam_opt = _beam_option(options, src)

@@ -2,16 +2,20 @@
 
 Switching the site at grid index (j, i) on or off adds ±exp(−2πi(r·j/Pr + c·i/Pc)) to the
 transform sample (r, c) of the layout (the stored half plane of the zero-padded transform of
-:class:`thinning.engine.pattern.FFTPatternEngine`): the change of a lobe's value for switching a
-site is one complex exponential. A local search can therefore follow the worst lobes of a
-layout exactly without transforming it again:
+:class:`thinning.engine.pattern.FFTPatternEngine`), and ±exp(j(kx_i·u + ky_j·v)) to the array
+factor at any direction (u, v): the change of a lobe's value for switching a site is one
+complex exponential. A local search can therefore follow the worst lobes of a layout exactly
+without transforming it again:
 
-1. **Worst lobes.** One full transform of the layout gives every sample; its main beam is cut
-   by the engine's rule (along each ray to the first null) and the samples of the sidelobe
-   region within ``depth_db`` of the highest one (at most ``max_lobes``) are kept with their
-   complex values AF_s: :class:`WorstLobes`.
-2. **Scores of every site.** The first-order change of Φ = Σ_s w_s |AF_s|², w_s = (|AF_s|²/
-   max)^κ, for switching site n is ±G_n + Σ w with
+1. **Worst lobes** (:class:`WorstLobes`). One full transform of the layout gives every
+   sample; its main beam is cut by the engine's rule (along each ray to the first null) and
+   the samples of the sidelobe region within ``lobe_depth_db`` of the highest one (at most
+   ``lobe_count``) are kept with their complex values AF_s. The local maxima among them are
+   the lobes: each placed at the vertex of a parabola (in dB) through its samples, the
+   :data:`CLIMB` highest climbed on the exact pattern, and their exact values taken there
+   (the parabola alone misses a peak by up to 0.1 dB).
+2. **Scores of every site.** The change of Φ = Σ_s w_s |AF_s|², w_s = (|AF_s|²/max)^(κ−1),
+   for switching site n is ±G_n + Σ w exactly, with
 
    .. math::  G_n = 2\\,\\mathrm{Re} \\sum_s w_s\\, \\overline{AF_s}\\, e^{-2\\pi i (r_s j_n/P_r
               + c_s i_n/P_c)},
@@ -19,23 +23,27 @@ layout exactly without transforming it again:
    K·N terms for K lobes and N sites, computed for all sites at once as one pruned inverse
    transform of the K weighted lobe values (the rows of the columns that hold a lobe, then the
    rows of the grid), O(P log P) whatever K.
-3. **Moves.** The on-genes with the largest G (switching them off lowers Φ most) are paired
-   with the off-genes of the same symmetry class with the smallest G, best first. The exact
-   values of the K lobes after the first m pairs are AF_s + Σ (phasors of the genes switched
-   on − of those switched off), read from exact tables of exp(−2πi t/P); the m with the lowest
-   highest lobe is taken, if it lowers it. Every sample outside the kept ones stood below
-   the threshold amplitude A_t and moves by at most one per switched site, so after S switched
-   sites the kept samples still hold the highest sample as long as A_t + S stays below it;
-   then (or when no move helps) the round ends.
-4. **Check.** The layout is evaluated in full (the transform, every candidate lobe refined on
+3. **Moves.** The best candidates (the on-genes of largest G, the off-genes of the same class
+   of smallest G) enter a linear programme that lowers the highest kept value to first order
+   (:meth:`WorstLobes.lp_move`); failing that, the candidates are paired best first and the
+   prefix of pairs with the lowest Φ (the soft-max of the kept values, the highest of which
+   must fall) is taken (:meth:`WorstLobes.best_move`). Either move is checked on the exact
+   values of every kept sample and lobe after it: AF + Σ (phasors switched on − off), from
+   exact tables of exp(−2πi t/P) and the peaks' row and column factors. Every sample outside
+   the kept ones stood below the threshold amplitude A_t and moves by at most one per switched
+   site (and, as a random walk, rarely by more than :data:`DRIFT`·√S after S switched sites):
+   while A_t plus that drift stays below the highest kept value, the kept values hold the
+   highest sample; then (or when no move helps) the round ends.
+4. **Check.** The layout is evaluated in full (the transform, the candidate lobes refined on
    the exact pattern: :meth:`thinning.search.Tracker.evaluate`), which counts it and keeps the
    best; the next round starts from a new transform. A round that does not improve the
-   objective returns to the best layout and digs deeper (``depth_db`` + 0.5 dB, twice the
-   lobes) or, when that no longer helps, lets the caller go on.
+   objective returns to the best layout and moves more cautiously (the drift bound doubled, up
+   to the strict one), then digs deeper (``lobe_depth_db`` + 0.5 dB, twice the lobes), and
+   after :data:`STALL_ROUNDS` fruitless rounds at the deepest lets the caller go on.
 
 So a full transform is taken once per round, and a round moves as many sites as the margin of
-the kept lobes allows (hundreds on a large aperture). :func:`polish` is the API other methods
-call on their best layout; the ``density`` method calls it after its start
+the kept lobes allows (tens to hundreds on a large aperture). :func:`polish` is the API other
+methods call on their best layout; the ``density`` method calls it after its start
 (:mod:`thinning.search.density`). The robust objective and ``objective = "asl"`` are not
 served (the moves aim at peaks of the nominal pattern): :func:`polish` then returns at once.
 """
@@ -60,13 +68,16 @@ POLISH_OPTIONS = {
     "lobe_step": 256,  # at most this many swaps in one move
 }
 #: Deepest kept band and most kept samples the search digs to when a round fails  [dB].
-MAX_DEPTH_DB, MAX_LOBES = 4.0, 32768
+MAX_DEPTH_DB, MAX_LOBES = 4.0, 8192
 #: Kept samples × swaps of one move scored together, at most (the move's phasor table).
 MOVE_TABLE = 1 << 22
 #: The samples outside the kept ones are taken to drift by at most DRIFT·√S after S switched
 #: sites (a random walk of unit steps; at most S in any case); doubled after a failed round up
 #: to MAX_DRIFT, past which the strict bound S holds.
 DRIFT, MAX_DRIFT = 3.0, 50.0
+#: Lobe peaks kept per round (placed by parabolas), and how many of the highest are climbed on
+#: the exact pattern.
+PEAKS, CLIMB = 512, 16
 #: Candidate genes (per side and class) and highest kept values of a programmed move.
 LP_CANDIDATES, LP_LOBES = 64, 128
 #: Rounds without improvement, at the deepest band, that end the polish.
@@ -97,6 +108,15 @@ def _centred_phases(problem):
     kx = k * gx * (np.arange(c) - (c - 1) / 2)
     ky = k * gy * (np.arange(r) - (r - 1) / 2) if r > 1 else np.zeros(1)
     return kx, ky
+
+
+def _twiddle_table(tw, index, n) -> np.ndarray:
+    """tw[(index[k]·t) mod P] for t < n, (len(index), n), built a block of rows at a time."""
+    out = np.empty((index.size, n), dtype=tw.dtype)
+    t = np.arange(n, dtype=np.int64)
+    for a in range(0, index.size, 1024):
+        out[a : a + 1024] = tw[np.outer(index[a : a + 1024], t) % tw.size]
+    return out
 
 
 def _transform(grid, pad, dtype) -> np.ndarray:
@@ -194,11 +214,16 @@ class WorstLobes:
         self._gene_ok = table >= 0
         self._width = int((table >= 0).sum(axis=1).max()) if table.size else 1
         self.grid_shape = grid.shape
+        # exp(−2πi r·j/Pr) and exp(−2πi c·i/Pc) of every kept sample for every grid row and
+        # column: a site's phasor at a sample is one product of two table entries
+        cdt = np.complex128 if np.dtype(dtype) == np.float64 else np.complex64
+        nr, ncol = grid.shape
+        self._tr = _twiddle_table(self._tw_r.astype(cdt), self.rows, nr)
+        self._tc = _twiddle_table(self._tw_c.astype(cdt), self.cols, ncol)
 
     def _peaks(self, problem, p, level, idx, tables, mask, max_peaks, climb):
         """The lobes among the kept samples (local maxima of the region), their peaks placed
         by a parabola through the samples (in dB, along u and v) and their exact values."""
-        from ..engine import fastpath
 
         eng = problem.engine
         g = eng.grid
@@ -223,24 +248,16 @@ class WorstLobes:
         u = (g.signed_cols[c_] + vertex(3, 4)) * g.du
         v = (g.signed_rows[s_] + (vertex(1, 6) if g.nr > 1 else 0.0)) * g.dv
         self._kx, self._ky = _centred_phases(problem)
-        on = problem.sites.to_grid(mask, dtype=np.int32) - 1  # 0 on, −1 off
-        on = np.ascontiguousarray(on[..., None])
-        ones = np.ones(on.shape)
+        a = problem.sites.to_grid(mask, dtype=np.float64)
 
         def values(u, v):
-            out = fastpath.call(
-                fastpath.group_patterns,
-                np.ascontiguousarray(u, dtype=np.float64),
-                np.ascontiguousarray(v, dtype=np.float64),
-                on,
-                ones,
-                self._kx,
-                self._ky,
-                1,
-            )
-            return out[:, 0, 0] + 1j * out[:, 0, 1]
+            """AF at the points: Σ_j e^{j ky v} Σ_i a e^{j kx u}, two matrix products."""
+            ex = np.exp(1j * np.outer(u, self._kx))  # (L, C)
+            ey = np.exp(1j * np.outer(v, self._ky))  # (L, R)
+            t = a @ ex.T  # (R, L)
+            return np.einsum("lj,jl->l", ey, t), ex, ey
 
-        ap = values(u, v)
+        ap, self._ex, self._ey = values(u, v)
         # the highest few climbed on the exact pattern (the parabola misses a peak by up to
         # 0.1 dB), their values taken again where they end
         if climb > 0 and ap.size:
@@ -252,7 +269,7 @@ class WorstLobes:
             _, u[hi], v[hi] = refine_peaks(
                 ex, u[hi], v[hi], (g.du, g.dv), eng.radius, linear=eng.linear, iterations=4
             )
-            ap[hi] = values(u[hi], v[hi])
+            ap[hi], self._ex[hi], self._ey[hi] = values(u[hi], v[hi])
         self.peak_u, self.peak_v, self.ap = u, v, ap
 
     # -- values ---------------------------------------------------------------------------
@@ -278,34 +295,35 @@ class WorstLobes:
         s = np.asarray(switched, dtype=float)
         return s if self._drift is None else np.minimum(s, self._drift * np.sqrt(s))
 
-    def phasors(self, genes) -> np.ndarray:
-        """Σ over each gene's sites of exp(−2πi(r·j/Pr + c·i/Pc)) at every kept sample:
-        what switching the gene on adds to the kept values, (K, len(genes)) complex."""
+    def phasors(self, genes, which=None) -> np.ndarray:
+        """Σ over each gene's sites of exp(−2πi(r·j/Pr + c·i/Pc)) at every kept sample (or
+        the samples ``which``): what switching the gene on adds to them, (K, len(genes))."""
         genes = np.atleast_1d(np.asarray(genes, dtype=np.int64))
-        pr, pc = self.pad
-        out = np.zeros((self.af.size, genes.size), dtype=np.complex128)
+        tr = self._tr if which is None else self._tr[which]
+        tc = self._tc if which is None else self._tc[which]
+        out = np.zeros((tr.shape[0], genes.size), dtype=np.complex128)
         for s in range(self._width):
             ok = self._gene_ok[genes, s]
             if not ok.any():
                 continue
-            jj = self._gene_j[genes, s]
-            ii = self._gene_i[genes, s]
-            ph = self._tw_r[np.outer(self.rows, jj) % pr] * self._tw_c[np.outer(self.cols, ii) % pc]
+            ph = tr[:, self._gene_j[genes, s]] * tc[:, self._gene_i[genes, s]]
             out += np.where(ok[None, :], ph, 0)
         return out
 
-    def peak_phasors(self, genes) -> np.ndarray:
-        """What switching each gene on adds to the lobe peaks: Σ over its sites of
-        exp(j(kx·u + ky·v)), one complex exponential per site and peak, (L, len(genes))."""
+    def peak_phasors(self, genes, which=None) -> np.ndarray:
+        """What switching each gene on adds to the lobe peaks (or the peaks ``which``): Σ over
+        its sites of exp(j(kx·u + ky·v)), one complex exponential per site and peak (a product
+        of the row and column factors kept per peak), (L, len(genes))."""
         genes = np.atleast_1d(np.asarray(genes, dtype=np.int64))
-        out = np.zeros((self.ap.size, genes.size), dtype=np.complex128)
+        ex = self._ex if which is None else self._ex[which]
+        ey = self._ey if which is None else self._ey[which]
+        out = np.zeros((ex.shape[0], genes.size), dtype=np.complex128)
         for s in range(self._width):
             ok = self._gene_ok[genes, s]
             if not ok.any():
                 continue
-            ph = np.outer(self.peak_u, self._kx[self._gene_i[genes, s]])
-            ph += np.outer(self.peak_v, self._ky[self._gene_j[genes, s]])
-            out += np.where(ok[None, :], np.exp(1j * ph), 0)
+            ph = ex[:, self._gene_i[genes, s]] * ey[:, self._gene_j[genes, s]]
+            out += np.where(ok[None, :], ph, 0)
         return out
 
     def swap_values(self, off_genes, on_genes) -> np.ndarray:
@@ -492,22 +510,9 @@ class WorstLobes:
         """What switching each gene on adds to the kept values ``rows`` (of the stacked
         samples and peaks), (len(rows), len(genes))."""
         ks = self.af.size
-        samp = rows[rows < ks]
-        pk = rows[rows >= ks] - ks
         out = np.zeros((rows.size, np.size(genes)), dtype=np.complex128)
-        keep_af, keep_ap = self.af, self.ap
-        try:
-            self.af, self.ap = keep_af[samp], keep_ap[pk]
-            rows_s, cols_s = self.rows, self.cols
-            pu, pv = self.peak_u, self.peak_v
-            self.rows, self.cols = rows_s[samp], cols_s[samp]
-            self.peak_u, self.peak_v = pu[pk], pv[pk]
-            out[rows < ks] = self.phasors(genes)
-            out[rows >= ks] = self.peak_phasors(genes)
-        finally:
-            self.af, self.ap = keep_af, keep_ap
-            self.rows, self.cols = rows_s, cols_s
-            self.peak_u, self.peak_v = pu, pv
+        out[rows < ks] = self.phasors(genes, rows[rows < ks])
+        out[rows >= ks] = self.peak_phasors(genes, rows[rows >= ks] - ks)
         return out
 
     @staticmethod
@@ -554,7 +559,7 @@ def polish(problem, tracker, genome, options: dict | None = None, until: float |
     drift = DRIFT
     stalls = 0
     while not _done(tracker, until):
-        lobes = WorstLobes(problem, g, depth, count, drift=drift)
+        lobes = WorstLobes(problem, g, depth, count, PEAKS, CLIMB, drift=drift)
         moved = 0
         while not _done(tracker, until):
             move = lobes.lp_move(opts["lobe_focus"], LP_CANDIDATES, LP_LOBES)
