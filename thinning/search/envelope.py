@@ -96,7 +96,7 @@ MAX_ROWS = 6000
 #: Below this many sites the main-beam radius is not searched (the middle factor is taken)
 #: and the programme takes one cutting round only.
 SEARCH_BEAM_SITES = 2048
-#: Bounds of two main-beam radii this close are the same (the search over them stops)  [dB].
+#: Bounds of two main-beam radii this close are the same  [dB].
 FLAT_DB = 0.01
 #: Angular bins of the outline's reach R(θ).
 REACH_BINS = 256
@@ -322,16 +322,6 @@ def _basis(problem, rings: int, sectors: int) -> _Basis:
     )
 
 
-def _phases(problem):
-    """Phase per unit u (v) of each grid column (row), centred as in GridExact  [rad]."""
-    r, c = problem.sites.grid_shape
-    gx, gy = problem.sites.lattice.grid_pitch
-    k = 2 * math.pi / problem.wavelength
-    kx = k * gx * (np.arange(c) - (c - 1) / 2)
-    ky = k * gy * (np.arange(r) - (r - 1) / 2) if r > 1 else np.zeros(1)
-    return kx, ky
-
-
 def _alias_centres(problem) -> np.ndarray:
     """Replicas of the main beam (reciprocal lattice of the sites) near the region, (k, 2)."""
     from ..geometry.lattice import reciprocal_basis
@@ -404,7 +394,7 @@ def _point_rows(problem, basis: _Basis, u, v):
     """Exact B (and pinned c) at arbitrary points (direct sum over every site)."""
     from ..engine import fastpath
 
-    kx, ky = _phases(problem)
+    kx, ky = problem.engine._phases()  # centred as in GridExact
     out = fastpath.call(
         fastpath.group_patterns,
         np.ascontiguousarray(u, dtype=np.float64),
@@ -689,18 +679,17 @@ def lp_envelope(problem, options: dict | None = None, taylor_genes=None) -> Enve
         judged[i], progs[i] = bound, prog
         return bound
 
+    # from the middle radius: wider while the bound does not get worse (a wider exclusion
+    # relaxes the programme; on a tie the wider one's first null is still outside it), else
+    # narrower while it gets better
     i = len(factors) // 2 if len(factors) > 1 else 0
     judge(i)
-    step = 0
-    if len(factors) > 1:
-        up = judge(i + 1)
-        if up < judged[i] - FLAT_DB:
-            step = 1
-        elif up > judged[i] + FLAT_DB and judge(i - 1) < judged[i] - FLAT_DB:
-            step = -1
-        # a flat stretch (the programme's first null beyond both radii) ends the search
-    while step and 0 <= i + step < len(factors) and judge(i + step) < judged[i] - FLAT_DB:
-        i += step
+    if i + 1 < len(factors) and judge(i + 1) <= judged[i] + FLAT_DB:
+        while i + 1 < len(factors) and judge(i + 1) <= judged[i] + FLAT_DB:
+            i += 1
+    else:
+        while i > 0 and judge(i - 1) < judged[i] - FLAT_DB:
+            i -= 1
     env = None
     if math.isfinite(judged[i]):
         beta, prog = factors[i], progs[i]

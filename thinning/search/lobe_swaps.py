@@ -37,8 +37,8 @@ without transforming it again:
 4. **Check.** The layout is evaluated in full (the transform, the candidate lobes refined on
    the exact pattern: :meth:`thinning.search.Tracker.evaluate`), which counts it and keeps the
    best; the next round starts from a new transform. A round that does not improve the
-   objective returns to the best layout and moves more cautiously (the drift bound doubled, up
-   to the strict one), then digs deeper (``lobe_depth_db`` + 0.5 dB, twice the lobes), and
+   objective returns to the best layout and moves more cautiously (the drift bound four times
+   larger, then the strict one), then digs deeper (``lobe_depth_db`` + 1 dB, twice the lobes), and
    after :data:`STALL_ROUNDS` fruitless rounds at the deepest lets the caller go on.
 
 So a full transform is taken once per round, and a round moves as many sites as the margin of
@@ -72,16 +72,16 @@ MAX_DEPTH_DB, MAX_LOBES = 4.0, 8192
 #: Kept samples × swaps of one move scored together, at most (the move's phasor table).
 MOVE_TABLE = 1 << 22
 #: The samples outside the kept ones are taken to drift by at most DRIFT·√S after S switched
-#: sites (a random walk of unit steps; at most S in any case); doubled after a failed round up
-#: to MAX_DRIFT, past which the strict bound S holds.
-DRIFT, MAX_DRIFT = 3.0, 50.0
+#: sites (a random walk of unit steps; at most S in any case); four times that after a failed
+#: round, up to MAX_DRIFT, past which the strict bound S holds.
+DRIFT, MAX_DRIFT = 3.0, 40.0
 #: Lobe peaks kept per round (placed by parabolas), and how many of the highest are climbed on
 #: the exact pattern.
 PEAKS, CLIMB = 512, 16
 #: Candidate genes (per side and class) and highest kept values of a programmed move.
 LP_CANDIDATES, LP_LOBES = 64, 128
 #: Rounds without improvement, at the deepest band, that end the polish.
-STALL_ROUNDS = 3
+STALL_ROUNDS = 2
 
 
 def _options(problem, options: dict | None) -> dict:
@@ -98,16 +98,6 @@ def _options(problem, options: dict | None) -> dict:
             raise SpecError(f"{where(src, f'search.{key}')}{v!r}: expected {what}")
         out[key] = int(v) if integer else float(v)
     return out
-
-
-def _centred_phases(problem):
-    """Phase per unit u (v) of each grid column (row), centred as in GridExact  [rad]."""
-    r, c = problem.sites.grid_shape
-    gx, gy = problem.sites.lattice.grid_pitch
-    k = 2 * math.pi / problem.wavelength
-    kx = k * gx * (np.arange(c) - (c - 1) / 2)
-    ky = k * gy * (np.arange(r) - (r - 1) / 2) if r > 1 else np.zeros(1)
-    return kx, ky
 
 
 def _twiddle_table(tw, index, n) -> np.ndarray:
@@ -247,7 +237,7 @@ class WorstLobes:
         s_, c_ = np.divmod(top, g.nc)
         u = (g.signed_cols[c_] + vertex(3, 4)) * g.du
         v = (g.signed_rows[s_] + (vertex(1, 6) if g.nr > 1 else 0.0)) * g.dv
-        self._kx, self._ky = _centred_phases(problem)
+        self._kx, self._ky = problem.engine._phases()  # centred as in GridExact
         a = problem.sites.to_grid(mask, dtype=np.float64)
 
         def values(u, v):
@@ -582,9 +572,9 @@ def polish(problem, tracker, genome, options: dict | None = None, until: float |
         # nothing gained: smaller moves (a stricter bound on the samples outside), a deeper
         # band; give up after a few rounds at the strictest and deepest
         if drift is not None:
-            drift = 2.0 * drift if 2.0 * drift < MAX_DRIFT else None
+            drift = 4.0 * drift if 4.0 * drift < MAX_DRIFT else None
         elif depth < MAX_DEPTH_DB or count < MAX_LOBES:
-            depth = min(MAX_DEPTH_DB, depth + 0.5)
+            depth = min(MAX_DEPTH_DB, depth + 1.0)
             count = min(MAX_LOBES, 2 * count)
         else:
             stalls += 1
