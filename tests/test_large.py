@@ -156,3 +156,23 @@ def test_default_method_by_size(side, method):
     assert "default for" in spec.method_label
     named = parse_spec(tomllib.loads(text + '[search]\nmethod = "ift"\n'), "s.toml")
     assert named.method == "ift" and named.method_label == "ift"
+
+
+def test_envelope_bound_in_layout_json_and_report(tmp_path):
+    """A density design records its envelope bound beside the PSL in layout.json and the
+    report's summary (and the bound is the one the problem's envelope holds)."""
+    import json
+
+    from helpers import small_spec
+
+    from thinning.analysis.design import run_design
+    from thinning.outputs.report import _summary
+
+    spec = parse_spec(tomllib.loads(small_spec("density", 60)), "small.toml")
+    res = run_design(spec, tmp_path / "d")
+    meta = json.loads((tmp_path / "d" / "layout.json").read_text())
+    assert meta["envelope_bound_db"] == pytest.approx(res.problem.envelope.bound_db, abs=1e-4)
+    assert meta["envelope"]["kind"] in ("lp", "taylor")
+    assert meta["method_by_size"] is False
+    html = _summary(meta)
+    assert 'data-key="envelope_bound_db"' in html and 'data-key="psl_db"' in html
