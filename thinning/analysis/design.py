@@ -64,6 +64,10 @@ def layout_metadata(
 ) -> dict:
     """The contents of layout.json: the score keys plus provenance."""
     meta = dict(metrics)
+    env = getattr(problem, "envelope", None)
+    if env is not None:  # the density envelope the search started from, and its bound
+        meta["envelope_bound_db"] = env.summary()["bound_db"]
+        meta["envelope"] = env.summary()
     meta.update(
         {
             "method": spec.method,
@@ -88,6 +92,7 @@ def layout_metadata(
             },
             "requirements": judge(spec.requirements, metrics),
             "history": search.history,
+            "method_by_size": spec.search_method is None,
             "notes": list(problem.notes) + list(spec.warnings),
             "caution": (
                 "Idealised array model (no mutual coupling, no edge effects). Verify by "

@@ -413,7 +413,7 @@ def density_expected_asl(problem, spec: Spec) -> float:
     from ..engine.metrics import expected_asl_tapered
     from ..search.density import taper_probabilities
 
-    pg = taper_probabilities(problem, spec.options)
+    pg = taper_probabilities(problem, {"taper": "lp", **spec.options})  # as the method draws
     p = np.where(problem.site_gene >= 0, pg[np.maximum(problem.site_gene, 0)], 0.0)
     p = np.where(problem.pinned_sites, 1.0, p)
     grid = problem.sites.to_grid(p[None].astype(np.float32))

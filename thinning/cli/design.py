@@ -80,7 +80,7 @@ def design(ctx, spec_toml, out_dir, workers, quiet):
     for w in spec.warnings:
         click.echo(f"thinning design: warning: {w}", err=True)
     figure = "worst excess over the mask" if spec.mask else "best PSL"
-    progress = None if quiet else format_progress(spec.method, figure)
+    progress = None if quiet else format_progress(spec.method_label, figure)
     result = run_design(
         spec, out_dir, workers=workers, progress=progress, extra_outputs=_extra_outputs()
     )

@@ -44,6 +44,9 @@ MAX_CANDIDATES = 64
 #: lobes that can still reach the PSL found).
 FAST_CANDIDATES = (10, 8)
 
+#: Sidelobe discs of other radii or centres an engine keeps (:meth:`FFTPatternEngine.region_for`).
+REGIONS_KEPT = 2
+
 _NO_GRIDS = np.zeros((1, 1, 1))  # stands in for the excitations when nothing is refined
 
 
@@ -271,6 +274,10 @@ class FFTPatternEngine(_Engine):
         """
         key = (float(radius), float(centre[0]), float(centre[1]))
         if key not in self._regions:
+            # a region holds a few arrays of the grid's size: keep the last few only (a scan
+            # table asks for one disc after another)
+            while len(self._regions) >= REGIONS_KEPT:
+                self._regions.pop(next(iter(self._regions)))
             self._regions[key] = SampledRegion(self.grid, radius, self.window_oversampling, centre)
         return self._regions[key]
 
@@ -390,7 +397,13 @@ class FFTPatternEngine(_Engine):
         """Detailed evaluation of one excitation grid: every candidate lobe refined."""
         region = self.region if region is None else region
         a = self._as_stack(grid)[:1]
-        power = self.power(a)
+        key = hash(a.tobytes())  # the same excitation asked about for several discs
+        last = getattr(self, "_last_power", None)
+        if last is not None and last[0] == key and np.array_equal(last[1], a):
+            power = last[2]
+        else:
+            power = self.power(a)
+            self._last_power = (key, a, power)
         return self._detail(self.exact(a), power, region.reduce(power), region)
 
 

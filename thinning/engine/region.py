@@ -148,15 +148,41 @@ class _Window:
     rows: np.ndarray
     cols: np.ndarray
     parent: np.ndarray  # position (in this window) of each sample's parent
-    jumps: list = field(default_factory=list)  # parent^(2^k) for k = 0, 1, ...
     rim: np.ndarray = None  # samples on the outermost ring
     capped: bool = False  # the window already spans the whole grid
     weight: np.ndarray = None  # region weight of each window sample
     w0: np.ndarray = None  # weight of the peak's own alias (the one the main beam removes)
-    outer_mask: np.ndarray = None  # 1 for region samples outside the window, else 0
+    region_gain: np.ndarray = None  # the region's g of every sample (shared, not copied)
     pos: np.ndarray = None  # position in the window of every storage index (−1 outside)
     gain: np.ndarray = None  # g of each window sample (region's limit weight)
     galias: np.ndarray = None  # ... and without its own direction (the main beam's)
+    _jumps: list = field(default=None, repr=False)
+    _outer: np.ndarray = field(default=None, repr=False)
+
+    @property
+    def jumps(self) -> list:
+        """parent^(2^k) for k = 0, 1, ... until every chain reaches the peak (built on first
+        use: only the numpy route needs them, and for a window spanning a large grid they are
+        a dozen arrays of its size)."""
+        if self._jumps is None:
+            jumps, j = [], self.parent
+            while True:
+                jumps.append(j)
+                if not j.any():  # every sample's 2^k-th ancestor is the peak (position 0)
+                    break
+                j = j[j]
+            self._jumps = jumps
+        return self._jumps
+
+    @property
+    def outer_mask(self) -> np.ndarray:
+        """g for region samples outside the window (1 without a mask), else 0 (float32; built on
+        first use)."""
+        if self._outer is None:
+            outer = self.region_gain.astype(np.float32)  # g: 1 in the region without a mask
+            outer[self.flat] = 0.0
+            self._outer = outer
+        return self._outer
 
     def main_beam(self, pw: np.ndarray) -> np.ndarray:
         """Main-beam membership of the window samples of a stack of patterns (B, n)."""
@@ -252,6 +278,43 @@ class FastTables:
         )
 
 
+def _alias_count(u, v, period, r2, radius, centre) -> np.ndarray:
+    """How many aliases (u + p·Tu, v + q·Tv) of each sample lie in the disc u² + v² ≤ r2
+    (coordinates relative to the disc's centre), shape (len(v), len(u)).
+
+    For each alias row offset q and column offset p the samples of a row that fall in the disc
+    form one interval of u; the intervals are marked at their ends on the sorted u axis and
+    summed along it, so the work is O(aliases · rows) plus one pass over the grid (instead of
+    a pass over the whole grid per alias).
+    """
+    tu, tv = period
+    reach = radius + math.hypot(*centre)
+    n_u = int(math.ceil(reach / tu)) + 1
+    n_v = 0 if tv is None else int(math.ceil(reach / tv)) + 1
+    order = np.argsort(u, kind="stable")
+    us = u[order]
+    diff = np.zeros((v.size, u.size + 1), dtype=np.int32)
+    rows = np.arange(v.size)
+    for q in range(-n_v, n_v + 1):
+        vv = v if tv is None else v + q * tv
+        rem = r2 - vv**2
+        inside = rem >= 0
+        if not inside.any():
+            continue
+        w = np.sqrt(np.where(inside, rem, 0.0))
+        for p in range(-n_u, n_u + 1):
+            # (u + p·Tu)² ≤ rem  ⇔  −p·Tu − w ≤ u ≤ −p·Tu + w
+            lo = np.searchsorted(us, -p * tu - w, side="left")
+            hi = np.searchsorted(us, -p * tu + w, side="right")
+            ok = inside & (hi > lo)
+            if ok.any():
+                np.add.at(diff, (rows[ok], lo[ok]), 1)
+                np.add.at(diff, (rows[ok], hi[ok]), -1)
+    count = np.empty((v.size, u.size))
+    count[:, order] = np.cumsum(diff[:, :-1], axis=1)
+    return count
+
+
 class SampledRegion:
     """The sidelobe region (a disc in u-v, less the main beam) on a :class:`SampleGrid`.
 
@@ -308,19 +371,7 @@ class SampledRegion:
         r2 = self.radius**2 * (1 + 1e-12)
         principal = (u**2 + v**2) <= r2
         if grid.periodic:
-            tu, tv = grid.period
-            count = np.zeros((grid.nr, grid.nc))
-            reach = self.radius + math.hypot(cu, cv)
-            np_u = int(math.ceil(reach / tu)) + 1
-            qs = (
-                [0]
-                if tv is None
-                else range(-(int(math.ceil(reach / tv)) + 1), int(math.ceil(reach / tv)) + 2)
-            )
-            for p in range(-np_u, np_u + 1):
-                for q in qs:
-                    vv = v if tv is None else v + q * tv
-                    count += ((u + p * tu) ** 2 + vv**2) <= r2
+            count = _alias_count(grid.u - cu, grid.v - cv, grid.period, r2, self.radius, (cu, cv))
         else:
             count = principal.astype(float)
         mult = grid.col_mult[None, :]
@@ -351,10 +402,9 @@ class SampledRegion:
         if radius in self._windows:
             return self._windows[radius]
         c_lo = -min(cmax, int(radius)) if g.full else 0
-        cc, rr = np.meshgrid(
-            np.arange(c_lo, min(cmax, int(radius)) + 1),
-            np.arange(-min(rmax, int(radius)), min(rmax, int(radius)) + 1),
-        )
+        c_hi = min(cmax, int(radius))
+        r_hi = min(rmax, int(radius))
+        cc, rr = np.meshgrid(np.arange(c_lo, c_hi + 1), np.arange(-r_hi, r_hi + 1))
         cc, rr = cc.ravel(), rr.ravel()
         rho = np.hypot(cc, rr)
         keep = rho <= radius
@@ -362,43 +412,29 @@ class SampledRegion:
         order = np.lexsort((rr, cc, rho))
         cc, rr, rho = cc[order], rr[order], rho[order]
         scale = np.where(rho > 0, (rho - 1.0) / np.where(rho > 0, rho, 1.0), 0.0)
+        # the parent one step nearer the peak along the ray: |parent| < |sample| (rounding
+        # moves it by at most 1/√2), so it lies in the window and comes before the sample
         pc = np.rint(cc * scale).astype(np.int64)
         pr = np.rint(rr * scale).astype(np.int64)
-        pos = {(int(c), int(r)): i for i, (c, r) in enumerate(zip(cc, rr, strict=True))}
-        parent = np.array(
-            [pos[(int(c), int(r))] for c, r in zip(pc, pr, strict=True)], dtype=np.int64
-        )
-        depth = 1
-        probe = np.arange(parent.size)
-        while True:  # longest chain to the peak
-            nxt = parent[probe]
-            if np.array_equal(nxt, probe):
-                break
-            probe = nxt
-            depth += 1
-        jumps = []
-        j = parent
-        for _ in range(max(1, math.ceil(math.log2(depth + 1)))):
-            jumps.append(j)
-            j = j[j]
+        where = np.full((2 * r_hi + 1, c_hi - c_lo + 1), -1, dtype=np.int64)
+        where[rr + r_hi, cc - c_lo] = np.arange(cc.size)
+        parent = where[pr + r_hi, pc - c_lo]
+        del where, scale, pc, pr
         capped = radius >= cmax and (g.nr == 1 or radius >= rmax)
         flat = g.flat(rr, cc)
-        outer = self.gain.astype(np.float32)  # g: 1 in the region without a mask
-        outer[flat] = 0.0
         w = _Window(
             radius=radius,
             flat=flat,
             rows=rr,
             cols=cc,
             parent=parent,
-            jumps=jumps,
             rim=(rho > radius - 1.0) & (np.abs(cc) < cmax) & ~capped,
             capped=capped,
             weight=self.weight[flat],
             w0=self.w0[flat],
-            outer_mask=outer,
             gain=self.gain[flat],
             galias=self.galias[flat],
+            region_gain=self.gain,
         )
         self._windows[radius] = w
         return w
@@ -432,12 +468,13 @@ class SampledRegion:
         for win in wins:
             if np.any(win.parent[1:] >= np.arange(1, win.parent.size)):
                 raise AssertionError("a window sample comes before its parent")
-        pos = np.full((len(wins), n), -1, dtype=np.int64)
+        # int32 tables: at 262,000 sites the grid holds 2.8 million samples
+        pos = np.full((len(wins), n), -1, dtype=np.int32)
         for k, win in enumerate(wins):
-            pos[k, win.flat] = np.arange(win.flat.size)
+            pos[k, win.flat] = np.arange(win.flat.size, dtype=np.int32)
         s, c = np.divmod(np.arange(n), g.nc)
         r = g.signed_rows[s]
-        nbr = np.full((n, 8), -1, dtype=np.int64)
+        nbr = np.full((n, 8), -1, dtype=np.int32)
         offsets = [(dr, dc) for dr in (-1, 0, 1) for dc in (-1, 0, 1) if dr or dc]
         for k, (dr, dc) in enumerate(offsets):
             if g.nr > 1 or dr == 0:
@@ -470,7 +507,7 @@ class SampledRegion:
             srows=g.signed_rows.astype(np.int64),
             scols=g.signed_cols.astype(np.int64),
             geom=geom,
-            outer=np.stack([w.outer_mask for w in wins]).astype(dtype),
+            outer=((self.weight > 0)[None, :] & (pos < 0)).astype(dtype),
             w_flat=np.concatenate([w.flat for w in wins]).astype(np.int64),
             w_parent=np.concatenate([w.parent for w in wins]).astype(np.int64),
             w_rim=np.concatenate([np.asarray(w.rim, dtype=np.bool_) for w in wins]),

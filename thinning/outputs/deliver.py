@@ -13,6 +13,8 @@ from pathlib import Path
 
 import numpy as np
 
+from .fill_image import LARGE_ELEMENTS
+
 __all__ = [
     "write_deliverables",
     "write_drawings",
@@ -24,6 +26,10 @@ __all__ = [
 #: Monte Carlo trials of the built-array analysis, for ``stress``, ``report`` and a design's
 #: report alike (a spec's [stress] trials overrides it).
 DEFAULT_TRIALS = 200
+
+#: Monte Carlo trials of the report's built-array section above LARGE_ELEMENTS elements, and
+#: the longest best-of-random baseline  [s].
+LARGE_TRIALS, BASELINE_MAX_S = 16, 10.0
 
 
 def write_drawings(
@@ -95,6 +101,9 @@ def default_stress(
     extra = {}
     if spec is not None:
         extra = spec.score_options(len(layout))
+    trials = int(cfg.get("trials", DEFAULT_TRIALS)) if model.any else 1
+    if len(layout) > LARGE_ELEMENTS:  # each trial is a full-plane transform of the panel
+        trials = min(trials, LARGE_TRIALS)
     return stress_layout(
         layout,
         frequency,
@@ -103,7 +112,7 @@ def default_stress(
         band=None if band is None else (band[0] * 1e9, band[1] * 1e9),
         steering=cfg.get("steering", "phase"),
         model=model,
-        trials=int(cfg.get("trials", DEFAULT_TRIALS)) if model.any else 1,
+        trials=trials,
         seed=int(cfg.get("seed", 0)),
         **extra,
     )
@@ -183,7 +192,7 @@ def write_deliverables(result, out: Path) -> list[Path]:
             spec.seed,
             {},
             max_evaluations=s.evaluations,
-            time_limit_s=max(1.0, 0.25 * s.runtime_s),
+            time_limit_s=max(1.0, min(0.25 * s.runtime_s, BASELINE_MAX_S)),
         )
         result.metrics["baseline_random"] = {
             "psl_db": baseline.psl_db,

@@ -22,6 +22,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..io.atomic import atomic_write
+from .fill_image import LARGE_ELEMENTS, draw_fill
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -245,7 +246,13 @@ def layout_figure(
         handles.extend(ln for ln in ax.get_lines() if not ln.get_label().startswith("_"))
 
     site_xy = _sites_mm(sites)
-    if site_xy is not None and len(site_xy):
+    large = n > LARGE_ELEMENTS  # the local fill as an image (fill_image), not every circle
+    if large:
+        im = draw_fill(ax, layout, site_xy)
+        fig.colorbar(im, ax=ax, shrink=0.6, label="local fill")
+        handles.append(Line2D([], [], ls="none", marker="s", label=im.get_label()))
+        labels = False
+    if site_xy is not None and len(site_xy) and not large:
         (dots,) = ax.plot(
             site_xy[:, 0],
             site_xy[:, 1],
@@ -263,7 +270,7 @@ def layout_figure(
         heights=d,
         angles=0.0,
         units="xy",
-        offsets=xy,
+        offsets=xy[:0] if large else xy,
         offset_transform=ax.transData,
         facecolors="tab:blue",
         edgecolors="navy",

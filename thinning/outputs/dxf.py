@@ -35,6 +35,7 @@ from pathlib import Path
 import numpy as np
 
 from ..io.atomic import atomic_write
+from .dxf_bulk import BULK_ELEMENTS, element_entities, insert_entities, reserve_handles
 
 __all__ = ["write_layout_dxf", "DXF_LAYERS", "DXF_VERSION"]
 
@@ -157,14 +158,15 @@ def write_layout_dxf(
         xmin, ymin, xmax, ymax = (b * 1e3 for b in aperture.bounds)
         lo, hi = np.minimum(lo, [xmin, ymin]), np.maximum(hi, [xmax, ymax])
 
-    for x, y in xy:
+    bulk = len(xy) > BULK_ELEMENTS  # the element entities written as text (dxf_bulk)
+    for x, y in xy if not bulk else ():
         centre = (float(x), float(y))
         msp.add_circle(centre, r, dxfattribs={"layer": "ELEMENTS"})
         msp.add_point(centre, dxfattribs={"layer": "ELEMENTS"})
 
     h = d / 3.0
     off = r * np.sqrt(0.5)  # on the circle, at 45° to the upper right
-    if labels:
+    if labels and not bulk:
         for (x, y), text in zip(xy, layout.element_ids, strict=True):
             msp.add_text(
                 _one_line(text),
@@ -206,7 +208,16 @@ def write_layout_dxf(
     centre = ((ext_lo[0] + ext_hi[0]) / 2.0, (ext_lo[1] + ext_hi[1]) / 2.0)
     doc.set_modelspace_vport(height=1.05 * max(height, width / _VIEW_ASPECT), center=centre)
 
+    if bulk:
+        first = reserve_handles(doc, len(xy) * (3 if labels else 2))
+        ids = [_one_line(t) for t in layout.element_ids] if labels else None
+        entities = element_entities(
+            xy, r, ids, msp.block_record_handle, first, r * np.sqrt(0.5), d / 3.0
+        )
     stream = io.StringIO()
     doc.write(stream)
-    atomic_write(path, doc.encode(stream.getvalue()))
+    text = stream.getvalue()
+    if bulk:
+        text = insert_entities(text, entities)
+    atomic_write(path, doc.encode(text))
     return path

@@ -32,6 +32,7 @@ from matplotlib.patches import Circle
 
 from ..analysis.score import layout_engine
 from ..geometry.layout import Layout
+from .fill_image import LARGE_ELEMENTS, draw_fill
 
 __all__ = [
     "FLOOR_DB",
@@ -60,10 +61,23 @@ MAX_DIRECT_POINTS = 601
 #: Rays along which the main-beam edge (first null) is located.
 MAIN_BEAM_RAYS = 120
 
+#: Above this many grid sites the u-v map is taken at the engine's 4× sampling in single
+#: precision (at 262,000 sites the 8× map would be 42 million samples), the table of the worst
+#: sidelobe across the scan cone reads the highest samples first, and the map is drawn from
+#: the maxima of blocks of samples.
+LARGE_MAP = 1 << 16
+#: Highest samples :func:`scan_psl_table` tries first.
+SCAN_TOP = 200_000
+#: Most samples per axis the u-v map figure draws (blocks of samples shown by their maximum).
+MAP_PIXELS = 1200
+
 
 def _db(p, floor_db=DATA_FLOOR_DB):
     with np.errstate(divide="ignore"):
-        return np.maximum(10.0 * np.log10(np.maximum(p, 0.0)), floor_db)
+        out = np.maximum(p, 0.0)
+        out = np.log10(out, out=out) if out.dtype == np.float32 else np.log10(out)
+        out *= 10.0
+        return np.maximum(out, floor_db, out=out)
 
 
 def _new_figure(size) -> Figure:
@@ -154,6 +168,9 @@ def uv_power_map(
     if grid is not None:
         rows, cols = grid.shape
         gx, gy = engine.pitch
+        if rows * cols > LARGE_MAP:  # the engine's 4× samples, in single precision
+            oversampling = min(oversampling, 4.0)
+            grid = grid.astype(np.float32)
 
         def axis(pad, size, period):
             """Transform length (≥ the engine's, ≥ n samples over ±extent), the sample
@@ -173,8 +190,10 @@ def uv_power_map(
             return u, None, _db(p[qu % pc], floor_db)
         pr, qv, v = axis(engine.pad[0], rows, wavelength / gy)
         f = scipy.fft.fft2(grid, s=(pr, pc), workers=-1)
-        p = (f.real**2 + f.imag**2) / float(grid.sum()) ** 2
-        return u, v, _db(p[np.ix_(qv % pr, qu % pc)], floor_db)
+        p = f.real**2 + f.imag**2
+        del f
+        p = p[np.ix_(qv % pr, qu % pc)] / np.float32(float(grid.sum()) ** 2)
+        return u, v, _db(p, floor_db)
 
     # off any lattice: the exact sum on a regular grid (an odd count keeps u = 0 a sample)
     def count(span):
@@ -197,6 +216,16 @@ def uv_power_map(
     return u, v, _db(p, floor_db)
 
 
+def _line_power(weights, phase) -> np.ndarray:
+    """|Σ_c w_c e^{j c φ}|² / (Σ w)² at each phase step φ  [1] (Horner's rule)."""
+    z = np.exp(1j * np.asarray(phase, dtype=float))
+    acc = np.zeros(z.size, dtype=np.complex128)
+    for w in np.asarray(weights, dtype=float)[::-1]:
+        acc *= z
+        acc += w
+    return (acc.real**2 + acc.imag**2) / float(np.sum(weights)) ** 2
+
+
 def principal_cuts(layout: Layout, wavelength: float, n: int | None = None) -> dict:
     """The exact pattern in the principal planes against θ.
 
@@ -214,7 +243,7 @@ def principal_cuts(layout: Layout, wavelength: float, n: int | None = None) -> d
         a linear array), each (n,) [dB] of |AF|²/(Σa)² with u = sin θ, v = 0 (x-z plane) or
         u = 0, v = sin θ (y-z plane), unclipped down to −150 dB.
     """
-    _, _, exact, _ = layout_engine(layout, wavelength, 0.0)
+    _, grid, exact, fit = layout_engine(layout, wavelength, 0.0)
     span = max(float(np.ptp(layout.x)), float(np.ptp(layout.y)), wavelength / 2)
     if n is None:
         n = int(min(max(1801, 60 * math.pi * span / wavelength), 40001))
@@ -222,6 +251,15 @@ def principal_cuts(layout: Layout, wavelength: float, n: int | None = None) -> d
     theta = np.linspace(-90.0, 90.0, n)
     s = np.sin(np.radians(theta))
     zero = np.zeros_like(s)
+    if grid is not None and grid.shape[0] > 1:
+        # on a grid each cut is the pattern of a projection (column or row sums), summed by
+        # Horner's rule in the phasor of one pitch: O(C) products per angle, no exponentials
+        k = 2 * math.pi / wavelength
+        cuts = {
+            "x-z": _db(_line_power(grid.sum(axis=0), k * fit.pitch[0] * s)),
+            "y-z": _db(_line_power(grid.sum(axis=1), k * fit.pitch[1] * s)),
+        }
+        return {"theta_deg": theta, "cuts": cuts}
     cuts = {"x-z": _db(exact.evaluate(s, zero, derivatives=False))}
     if not layout.is_linear:
         cuts["y-z"] = _db(exact.evaluate(zero, s, derivatives=False))
@@ -320,18 +358,38 @@ def scan_psl_table(
         mb = mb[None, :]
     else:
         phis = np.asarray(phis_deg, dtype=float)
-        uu, vv2 = np.meshgrid(u, v)
+        # the main beam lies within the largest radius: only that block is looked at
+        cs = np.flatnonzero(np.abs(u) <= rad.max())
+        rs = np.flatnonzero(np.abs(v) <= rad.max())
+        uu, vv2 = np.meshgrid(u[cs], v[rs])
         ang = np.mod(np.arctan2(vv2, uu), 2 * math.pi)
         rr = np.interp(ang, np.append(psi, 2 * math.pi), np.append(rad, rad[0]))
-        mb = np.hypot(uu, vv2) <= rr
+        mb = np.zeros(p.shape, dtype=bool)
+        mb[np.ix_(rs, cs)] = np.hypot(uu, vv2) <= rr
         vv = v
     k = max(int(steps), 1) if scan_max > 0 else 1
     theta = np.linspace(0.0, scan_max, k)
     psl = np.full((k, phis.size), -np.inf)
     where = np.full((k, phis.size, 2), np.nan)
+    # the highest samples outside the main beam, highest first: a steered beam's worst
+    # sidelobe is the first of them inside its visible disc (the whole map read only when
+    # none is)
+    pm = np.where(mb, -1.0, p).ravel()
+    top = min(pm.size, SCAN_TOP)
+    cand = np.argpartition(-pm, top - 1)[:top] if top < pm.size else np.arange(pm.size)
+    cand = cand[np.argsort(-pm[cand], kind="stable")]
+    cand = cand[pm[cand] > 0]
+    cr, cc = np.divmod(cand, u.size)
+    cu_, cv_ = u[cc], vv[cr]
     for i, t in enumerate(theta):
         for j, ph in enumerate(np.radians(phis)):
             u0, v0 = math.sin(t) * math.cos(ph), math.sin(t) * math.sin(ph)
+            first = np.flatnonzero((cu_ + u0) ** 2 + (cv_ + v0) ** 2 <= 1.0 + 1e-12)
+            if first.size:
+                a = first[0]
+                psl[i, j] = 10.0 * math.log10(pm[cand[a]])
+                where[i, j] = (cu_[a] + u0, cv_[a] + v0)
+                continue
             cs = np.flatnonzero(np.abs(u + u0) <= 1.0 + 1e-12)
             rs = np.flatnonzero(np.abs(vv + v0) <= 1.0 + 1e-12)
             su, sv = u[cs] + u0, vv[rs] + v0
@@ -415,6 +473,12 @@ def fig_uv_map(
         fig.legend(loc="outside lower center", ncols=2, fontsize=7)
         ax.grid(alpha=0.3)
         return fig
+    if max(p_db.shape) > MAP_PIXELS:  # drawn from the maxima of blocks of samples
+        b = -(-max(p_db.shape) // MAP_PIXELS)
+        nv, nu = p_db.shape[0] // b * b, p_db.shape[1] // b * b
+        p_db = p_db[:nv, :nu].reshape(nv // b, b, nu // b, b).max(axis=(1, 3))
+        u = u[:nu].reshape(-1, b).mean(axis=1)
+        v = v[:nv].reshape(-1, b).mean(axis=1)
     fig = _new_figure((6.6, 6.0))
     ax = fig.add_subplot()
     hu = (u[1] - u[0]) / 2 if u.size > 1 else 0.5
@@ -642,6 +706,15 @@ def fig_layout(layout: Layout, aperture=None, sites=None) -> Figure:
         ax.plot(ring[:, 0], ring[:, 1], color="k", lw=1.0, label="aperture outline")
         for h in aperture.holes_mm():
             ax.plot(h[:, 0], h[:, 1], color="k", lw=0.8)
+    if len(layout) > LARGE_ELEMENTS:  # the local fill as an image (fill_image)
+        s = None if sites is None else np.asarray(sites, dtype=float).reshape(-1, 2) * 1e3
+        im = draw_fill(ax, layout, s)
+        fig.colorbar(im, ax=ax, shrink=0.8, label="local fill")
+        ax.set_aspect("equal")
+        ax.set_xlabel("x  [mm]")
+        ax.set_ylabel("y  [mm]")
+        ax.set_title(f"{len(layout)} elements on {m} sites (local fill)", fontsize=10)
+        return fig
     if sites is not None:
         s = np.asarray(sites, dtype=float).reshape(-1, 2) * 1e3
         ax.scatter(

@@ -266,6 +266,20 @@ def summary_html(m: Mapping, lattice_kind: str | None = None) -> str:
             m.get("psl_db"),
             f"over the scan cone, {at}",
         ),
+        *(
+            [
+                _row(
+                    "Envelope bound",
+                    _num(m.get("envelope_bound_db"), 2, "dB"),
+                    "envelope_bound_db",
+                    m.get("envelope_bound_db"),
+                    "peak of the expected pattern of the density envelope the search started "
+                    "from (beside the PSL above)",
+                )
+            ]
+            if m.get("envelope_bound_db") is not None
+            else []
+        ),
         _row("Average sidelobe level (ASL)", _num(asl, 2, "dB"), "asl_db", asl, diff_asl),
         _row(
             "ASL expected from random thinning",

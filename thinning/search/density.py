@@ -1,32 +1,51 @@
-"""Statistical density tapering: on-probabilities that follow an amplitude taper.
+"""Statistical density tapering: an envelope of on-probabilities, exact-count layouts from it,
+and lobe-aimed swaps to finish.
 
-Each gene is switched on with a probability proportional to the value of an amplitude taper at
-its sites (Willey, "Space tapering of linear and planar arrays", IRE TAP AP-10, 1962; Skolnik,
-Sherman & Ogg, "Statistically designed density-tapered arrays", IEEE TAP 12(4), 1964). The
-*expected* array factor is then the pattern of the taper itself, and the draws scatter about it
-with a mean sidelobe power (references.md row 5)
+Each gene is switched on with a probability pₙ that follows an *envelope* (Willey, "Space
+tapering of linear and planar arrays", IRE TAP AP-10, 1962; Skolnik, Sherman & Ogg,
+"Statistically designed density-tapered arrays", IEEE TAP 12(4), 1964). The *expected* array
+factor is then the pattern of the envelope itself, and the draws scatter about it with a mean
+sidelobe power (references.md row 5)
 
 .. math::
 
     E|AF(u)|^2 = \\Bigl|\\sum_n p_n e^{j\\psi_n(u)}\\Bigr|^2 + \\sum_n p_n (1 - p_n).
 
-Unlike the independent draws of those papers, every draw here has the exact element count: the
-genes of each symmetry class are drawn by randomised systematic sampling (Madow, Ann. Math.
-Statist. 20, 1949), which keeps each marginal P(gene on) = pₙ exactly. The search is the best
-of K such draws.
+The envelope is by default the one a linear programme finds for the panel's own outline
+(:mod:`thinning.search.envelope`); its bound (the expected pattern's peak) is recorded with the
+run (``problem.envelope``). A Taylor taper used as a density (the classical choice) or uniform
+probabilities (random thinning) are options.
+
+Every layout has the exact element count: the genes of each symmetry class are drawn by
+randomised systematic sampling (Madow, Ann. Math. Statist. 20, 1949), which keeps each marginal
+P(gene on) = pₙ exactly, or decided by error diffusion (:mod:`thinning.search.sampling`). The
+run starts from the best of those layouts (eight diffusion scans, eight dithered ones and
+``draws`` random draws, by default 16) and then, with ``polish`` (the default), improves it by
+swap moves aimed at its worst lobes (:func:`thinning.search.lobe_swaps.polish`) until the
+limits, trying the next start (then the best one shaken by a few random swaps) whenever the
+moves stop helping. Without ``polish`` it is the best of K draws as before.
 
 Options
 -------
-taper : {"taylor", "uniform"}
-    Amplitude taper (default "taylor"); "uniform" gives equal probabilities, which is random
-    thinning.
+taper : {"lp", "taylor", "uniform"}
+    Envelope (default "lp", the linear programme); "taylor" the Taylor amplitude taper used as
+    a density; "uniform" equal probabilities, which is random thinning. Other methods that
+    seed from the density (``genetic``, ``ift``) take "lp" by default from
+    :data:`LARGE_SITES` candidate sites on and "taylor" below.
 taper_sll_db : float  [dB]
     Design sidelobe level of the Taylor taper, as a positive number of dB below the main lobe
     (default 30).
 taper_nbar : int
     Number n̄ of nearly equal-level sidelobes of the Taylor taper (default 5).
+envelope_rings, envelope_sectors, envelope_beam
+    The programme's basis and main-beam radius (:func:`thinning.search.envelope.lp_envelope`).
+polish : bool
+    Finish with lobe-aimed swaps (default true).
+lobe_depth_db, lobe_count, lobe_focus, lobe_step
+    Of the swaps (:func:`thinning.search.lobe_swaps.polish`).
 batch, draws : int
-    As for :mod:`thinning.search.random`.
+    As for :mod:`thinning.search.random` (without ``polish``); with it, ``draws`` is the number
+    of random draws among the starts.
 """
 
 from __future__ import annotations
@@ -38,20 +57,43 @@ import numpy as np
 from scipy.signal.windows import taylor
 
 from ..errors import SpecError, where
-from .random import best_of_draws
+from .random import DEFAULT_BATCH, _positive_int, best_of_draws
+from .sampling import systematic
 
-__all__ = ["TAPERS", "run", "taper_probabilities", "taper_values", "draw"]
+__all__ = [
+    "TAPERS",
+    "LARGE_SITES",
+    "run",
+    "taper_probabilities",
+    "taper_values",
+    "draw",
+    "optimised_envelope",
+    "starting_layouts",
+    "default_taper",
+]
 
-TAPERS = ("taylor", "uniform")
+TAPERS = ("lp", "taylor", "uniform")
+#: From this many candidate sites on, the optimised envelope seeds every method and the spec's
+#: default method is ``density`` (:func:`thinning.spec.default_method`).
+LARGE_SITES = 4096
+#: Random systematic draws among the starts of a polished run (option ``draws``).
+START_DRAWS = 16
+#: Shaken copies of the best layout polished after the starts, at most.
+SHAKES = 64
 #: Samples of the reference Taylor window that is interpolated at the sites.
 TAPER_SAMPLES = 2001
-#: Probabilities this close to 1 are treated as certain in :func:`draw`.
-CERTAIN = 1.0 - 1e-9
+
+
+def default_taper(problem) -> str:
+    """The envelope other methods seed from when the spec names none: the optimised one
+    ("lp") from :data:`LARGE_SITES` candidate sites on, the Taylor taper below (where the
+    random floor, not the envelope, sets the peak, and the search is quick anyway)."""
+    return "lp" if len(problem.sites) >= LARGE_SITES else "taylor"
 
 
 def _taper_options(problem, options: dict) -> tuple[str, float, int]:
     src = getattr(problem, "source", None)
-    kind = options.get("taper", "taylor")
+    kind = options.get("taper", default_taper(problem))
     if kind not in TAPERS:
         raise SpecError(
             f"{where(src, 'search.taper')}{kind!r}: expected one of {', '.join(TAPERS)}"
@@ -109,7 +151,7 @@ def taper_values(sites, kind: str = "taylor", sll_db: float = 30.0, nbar: int = 
     m = len(sites)
     if kind == "uniform":
         return np.ones(m)
-    if kind != "taylor":
+    if kind not in ("taylor", "lp"):
         raise ValueError(f"taper {kind!r}: expected one of {', '.join(TAPERS)}")
     x, y = sites.x, sites.y
     if sites.lattice.kind == "linear":
@@ -162,7 +204,9 @@ def taper_probabilities(problem, options: dict | None = None) -> np.ndarray:
     ----------
     problem : ThinningProblem
     options : dict, optional
-        ``taper``, ``taper_sll_db`` [dB], ``taper_nbar`` (see the module docstring).
+        ``taper``, ``taper_sll_db`` [dB], ``taper_nbar`` (see the module docstring); with
+        ``taper = "lp"`` (the default from :data:`LARGE_SITES` sites on) the optimised envelope
+        of :func:`optimised_envelope`.
 
     Returns
     -------
@@ -174,7 +218,10 @@ def taper_probabilities(problem, options: dict | None = None) -> np.ndarray:
     thinning.errors.SpecError
         For an unknown taper or an out-of-range taper parameter.
     """
-    kind, sll, nbar = _taper_options(problem, dict(options or {}))
+    options = dict(options or {})
+    kind, sll, nbar = _taper_options(problem, options)
+    if kind == "lp":
+        return optimised_envelope(problem, options).genes
     w_site = taper_values(problem.sites, kind, sll, nbar)
     g = problem.n_genes
     free = problem.site_gene >= 0
@@ -189,70 +236,79 @@ def taper_probabilities(problem, options: dict | None = None) -> np.ndarray:
 
 
 def draw(problem, p, rng: np.random.Generator, k: int) -> np.ndarray:
-    """k genomes with exactly ``class_ones[c]`` genes on per class and P(gene n on) = pₙ.
+    """k genomes drawn with P(gene n on) = pₙ and the exact count of every class
+    (randomised systematic sampling, :func:`thinning.search.sampling.systematic`)."""
+    return systematic(problem, p, rng, k)
 
-    Randomised systematic sampling (Madow, "On the theory of systematic sampling, II",
-    Ann. Math. Statist. 20, 1949), per class and vectorised over the draws: the class's genes
-    are put in a random order, their probabilities laid end to end on [0, n) with cumulative
-    sums Cₙ, and with one offset u ~ U[0, 1) the genes whose interval holds one of
-    u, u + 1, …, u + n − 1 are switched on:
 
-    .. math::  x_n = \\lceil C_n - u \\rceil - \\lceil C_{n-1} - u \\rceil \\in \\{0, 1\\}.
+def optimised_envelope(problem, options: dict | None = None):
+    """The linear-programme envelope of a problem (:func:`thinning.search.envelope.lp_envelope`),
+    computed once per problem and options and kept as ``problem.envelope``.
 
-    The count is exactly n (the sum telescopes), and each gene is on with probability pₙ
-    exactly, whatever the order; the random order spreads the joint inclusions. Genes with
-    pₙ ≥ 1 − 10⁻⁹ are always on. With equal pₙ the draw is uniform over all n-subsets, i.e.
-    random thinning.
-
-    Parameters
-    ----------
-    problem : ThinningProblem
-    p : (G,) array_like  [1]
-        On-probabilities in [0, 1], summing to ``class_ones[c]`` over each class.
-    rng : numpy.random.Generator
-    k : int
-        Number of genomes.
-
-    Returns
-    -------
-    (k, G) bool array
+    The Taylor envelope (``taper_sll_db``, ``taper_nbar``) is passed along, so the result is
+    never worse than it; a programme that fails (a degenerate panel) falls back to it, with a
+    note in ``problem.notes``.
     """
-    p = np.asarray(p, dtype=float)
-    g = problem.n_genes
-    if p.shape != (g,):
-        raise ValueError(f"p has shape {p.shape}; the problem has {g} genes")
-    if np.any(~np.isfinite(p)) or np.any(p < -1e-12) or np.any(p > 1 + 1e-12):
-        raise ValueError("on-probabilities must lie in [0, 1]")
-    p = np.clip(p, 0.0, 1.0)
-    out = np.zeros((k, g), dtype=bool)
-    for c, ones in enumerate(problem.class_ones):
-        ones = int(ones)
+    from .envelope import Envelope, envelope_bound, lp_envelope, site_probabilities
+
+    options = dict(options or {})
+    key = tuple(
+        (k, options.get(k))
+        for k in (
+            "envelope_rings",
+            "envelope_sectors",
+            "envelope_beam",
+            "taper_sll_db",
+            "taper_nbar",
+        )
+    )
+    cache = problem.__dict__.setdefault("_envelopes", {})
+    if key not in cache:
+        taylor_genes = taper_probabilities(problem, {**options, "taper": "taylor"})
+        try:
+            env = lp_envelope(problem, options, taylor_genes)
+        except SpecError:
+            raise
+        except (ValueError, RuntimeError, np.linalg.LinAlgError) as exc:
+            site_p = site_probabilities(problem, taylor_genes)
+            bound, at = envelope_bound(problem, site_p)
+            env = Envelope("taylor", taylor_genes, site_p, bound, at, taylor_bound_db=bound)
+            problem.notes.append(f"envelope programme failed ({exc}); Taylor envelope used")
+        cache[key] = env
+    problem.envelope = cache[key]
+    return cache[key]
+
+
+def starting_layouts(problem, p, rng, draws: int) -> np.ndarray:
+    """The starting layouts of a polished run: error diffusion in eight scans, eight dithered
+    ones, and ``draws`` random systematic draws."""
+    from .sampling import ORIENTATIONS, error_diffusion
+
+    starts = [error_diffusion(problem, p, v) for v in range(len(ORIENTATIONS))]
+    starts += [
+        error_diffusion(problem, p, v, dither=1.0, rng=rng) for v in range(len(ORIENTATIONS))
+    ]
+    out = np.vstack([np.array(starts), systematic(problem, p, rng, draws)])
+    _, first = np.unique(np.packbits(out, axis=1), axis=0, return_index=True)
+    return out[np.sort(first)]
+
+
+def _shaken(problem, genome, rng, swaps: int) -> np.ndarray:
+    """A genome with ``swaps`` random count-preserving swaps per class (at most)."""
+    g = genome.copy()
+    for c in range(problem.class_ones.size):
         idx = np.flatnonzero(problem.gene_class == c)
-        pc = p[idx]
-        if not math.isclose(float(pc.sum()), ones, rel_tol=1e-9, abs_tol=1e-9):
-            raise ValueError(
-                f"on-probabilities of class {c} sum to {pc.sum():.6g}, not its {ones} genes on"
-            )
-        sure = pc >= CERTAIN
-        out[:, idx[sure]] = True
-        rest = idx[~sure]
-        n = ones - int(sure.sum())
-        if n <= 0 or rest.size == 0:
-            continue
-        order = np.argsort(rng.random((k, rest.size)), axis=1)
-        cum = np.minimum(np.cumsum(p[rest][order], axis=1), n)
-        cum[:, -1] = n  # so that the count telescopes to exactly n
-        u = rng.random((k, 1))
-        hi = np.ceil(cum - u)
-        lo = np.concatenate([np.zeros((k, 1)), hi[:, :-1]], axis=1)
-        on = (hi - lo) > 0.5
-        rows = np.repeat(np.arange(k), rest.size)
-        out[rows, rest[order.ravel()]] = on.ravel()
-    return out
+        on, off = idx[g[idx]], idx[~g[idx]]
+        k = min(swaps, on.size, off.size)
+        if k:
+            g[rng.choice(on, k, replace=False)] = False
+            g[rng.choice(off, k, replace=False)] = True
+    return g
 
 
 def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
-    """Best of K density-tapered draws (see the module docstring).
+    """The envelope, the best of its exact-count layouts, and lobe-aimed swaps to finish (see
+    the module docstring).
 
     Parameters
     ----------
@@ -260,12 +316,43 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
     tracker : thinning.search.Tracker
     rng : numpy.random.Generator
     options : dict
-        ``taper``, ``taper_sll_db`` [dB], ``taper_nbar``, ``batch``, ``draws``.
+        ``taper``, ``taper_sll_db`` [dB], ``taper_nbar``, ``envelope_…``, ``polish``,
+        ``lobe_…``, ``batch``, ``draws``.
 
     Returns
     -------
     str
-        Why the run stopped: ``"evaluations"``, ``"time"`` or ``"draws"``.
+        Why the run stopped: ``"evaluations"``, ``"time"``, ``"draws"`` (without polish) or
+        ``"stall"`` (the swaps stopped helping after every start and shake).
     """
-    p = taper_probabilities(problem, options)
-    return best_of_draws(problem, tracker, options, lambda k: draw(problem, p, rng, k))
+    from .lobe_swaps import _options as polish_options
+    from .lobe_swaps import polish
+
+    p = taper_probabilities(problem, {"taper": "lp", **options})
+    do_polish = options.get("polish", True)
+    if not isinstance(do_polish, bool):
+        src = getattr(problem, "source", None)
+        raise SpecError(f"{where(src, 'search.polish')}{do_polish!r}: expected true or false")
+    if not do_polish:
+        return best_of_draws(problem, tracker, options, lambda k: draw(problem, p, rng, k))
+    polish_options(problem, options)  # refuse bad options before any work
+    src = getattr(problem, "source", None)
+    _positive_int(options, "batch", DEFAULT_BATCH, src)
+    draws = _positive_int(options, "draws", START_DRAWS, src)
+    starts = starting_layouts(problem, p, rng, draws)
+    if math.isfinite(tracker.remaining):
+        starts = starts[: max(1, int(tracker.remaining))]
+    ev = tracker.evaluate(starts)
+    order = np.argsort(ev.objective, kind="stable")
+    tracker.record(round=0)
+    best = starts[order[0]]
+    queue = [starts[i] for i in order]
+    shake = max(4, problem.elements // 2000)
+    for k in range(len(queue) + SHAKES):
+        if tracker.should_stop():
+            return tracker.stop_reason()
+        start = queue[k] if k < len(queue) else _shaken(problem, best, rng, shake)
+        polish(problem, tracker, start, options)
+        best = tracker.best_genome
+        tracker.record(round=k + 1)
+    return tracker.stop_reason() or "stall"

@@ -74,6 +74,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import time
 
 import numpy as np
 import scipy.fft
@@ -254,7 +255,9 @@ class IFTPlan:
         return a
 
 
-def iterate(plan: IFTPlan, start: np.ndarray, level_db, iterations: int) -> np.ndarray:
+def iterate(
+    plan: IFTPlan, start: np.ndarray, level_db, iterations: int, deadline: float | None = None
+) -> np.ndarray:
     """Run trials from site excitations ``start`` (B, M); returns their layouts (B, G).
 
     Parameters
@@ -263,6 +266,8 @@ def iterate(plan: IFTPlan, start: np.ndarray, level_db, iterations: int) -> np.n
     start : (B, M) array   starting excitations
     level_db : float or (B,) array  [dB]   clip level of each trial, below its main-beam peak
     iterations : int   most steps per trial
+    deadline : float, optional  [s]   ``time.perf_counter()`` past which no further step is
+        taken (the layouts of the last step are returned: a time limit is kept to one step)
     """
     exc = plan.relax(np.asarray(start, dtype=float))
     b = exc.shape[0]
@@ -275,7 +280,7 @@ def iterate(plan: IFTPlan, start: np.ndarray, level_db, iterations: int) -> np.n
         settled = np.all(new == genomes[active], axis=1) if step else np.zeros(b, dtype=bool)
         genomes[active] = new
         active, e = active[~settled], e[~settled]
-        if active.size == 0:
+        if active.size == 0 or (deadline is not None and time.perf_counter() > deadline):
             break
         exc = plan.relax(e)
     return genomes
@@ -374,7 +379,8 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
             break
         start = _starts(plan, rng, k, opts.density_fraction, options)
         level, delta = _levels(plan, opts, rng, k, best_delta)
-        ev = tracker.evaluate(iterate(plan, start, level, opts.iterations))
+        deadline = None if tracker.time_limit_s is None else tracker.start + tracker.time_limit_s
+        ev = tracker.evaluate(iterate(plan, start, level, opts.iterations, deadline))
         i = int(np.argmin(ev.objective))
         if ev.objective[i] < best:
             best, best_delta = float(ev.objective[i]), float(delta[i])

@@ -36,11 +36,11 @@ __all__ = ["SYMMETRIES", "OBJECTIVES", "ThinningProblem", "Evaluation"]
 
 SYMMETRIES = ("none", "mirror-x", "mirror-y", "mirror-xy", "rotate-180")
 OBJECTIVES = ("psl", "asl")
-#: Patterns per FFT batch. Fixed, so that a population is cut into the same batches whatever
-#: the number of worker processes, and the results are bit-identical for any ``--workers``.
 #: a base layout this many genes (or fewer) from the last one is updated, not transformed
 SWAP_ADVANCE_GENES = 4
-BATCH = 16
+#: Patterns per FFT batch (and, at most, transform samples in one). Fixed per problem, so that
+#: a population is cut into the same batches for any number of worker processes.
+BATCH, BATCH_SAMPLES = 16, 1 << 24
 
 
 @dataclass
@@ -282,6 +282,8 @@ class ThinningProblem:
         docstring).
     hpbw_max : float, optional  [deg]
         A limit on the widest half-power beamwidth, enforced by a penalty.
+    envelope : thinning.search.envelope.Envelope, optional
+        The density envelope the search started from (set by the density module).
     """
 
     sites: Sites
@@ -303,6 +305,7 @@ class ThinningProblem:
     coverage: object = None
     limits: object = None
     hpbw_max: float | None = None
+    envelope: object = None
 
     def __post_init__(self):
         m = len(self.sites)
@@ -451,6 +454,13 @@ class ThinningProblem:
         return int(self.gene_orbit.size)
 
     @property
+    def batch(self) -> int:
+        """Layouts :meth:`evaluate` transforms together: :data:`BATCH`, fewer on a large grid
+        (:data:`BATCH_SAMPLES` samples at most: 4 layouts at 262,000 sites)."""
+        pr, pc = self.engine.pad
+        return int(max(1, min(BATCH, BATCH_SAMPLES // (pr * (pc // 2 + 1)))))
+
+    @property
     def fill(self) -> float:
         return self.elements / len(self.sites)
 
@@ -514,11 +524,12 @@ class ThinningProblem:
             return self._evaluate_robust(masks)
         psl = np.empty(masks.shape[0])
         asl = np.empty(masks.shape[0])
-        for s in range(0, masks.shape[0], BATCH):
-            grids = self.sites.to_grid(masks[s : s + BATCH].astype(np.float32))
+        step = self.batch
+        for s in range(0, masks.shape[0], step):
+            grids = self.sites.to_grid(masks[s : s + step].astype(np.float32))
             sc = self.engine.evaluate(grids)
-            psl[s : s + BATCH] = sc.psl_db + self.hpbw_penalty(grids)
-            asl[s : s + BATCH] = sc.asl_db
+            psl[s : s + step] = sc.psl_db + self.hpbw_penalty(grids)
+            asl[s : s + step] = sc.asl_db
         return Evaluation(self.combine(psl, asl), psl, asl)
 
     def _evaluate_robust(self, masks) -> Evaluation:

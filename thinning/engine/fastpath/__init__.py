@@ -33,9 +33,10 @@ evaluate_swaps`). A main beam that reaches the rim of a window is cut again in t
 twice as wide, as the numpy route does. Everything runs on the CPU in the calling thread,
 without the GIL (so that the thread feeding the worker processes keeps running meanwhile).
 
-The kernels live in four modules by what they compute: :mod:`.exact` (the exact pattern and the
+The kernels live in modules by what they compute: :mod:`.exact` (the exact pattern and the
 Newton climb), :mod:`.lobes` (candidate lobes and their aliases), :mod:`.scores` (whole
-evaluations and the main-beam cut) and :mod:`.swaps` (swap moves and their ASL terms); this
+evaluations and the main-beam cut), :mod:`.swaps` (swap moves and their ASL terms) and
+:mod:`.envelope` (patterns of groups of sites, for the density envelope); this
 module holds :func:`call` and names the public kernels. numba caches each compiled kernel on
 disk beside its module and checks only that module's own file for changes: after editing a
 kernel that others call, delete ``thinning/engine/fastpath/__pycache__`` (an install from
@@ -47,11 +48,22 @@ from __future__ import annotations
 import signal
 import threading
 
+from .envelope import group_patterns
 from .exact import exact_point
+from .sampling import diffuse
 from .scores import fast_scores, main_beam_cut
 from .swaps import swap_asl_terms, swap_scores
 
-__all__ = ["call", "fast_scores", "swap_scores", "swap_asl_terms", "main_beam_cut", "exact_point"]
+__all__ = [
+    "call",
+    "fast_scores",
+    "swap_scores",
+    "swap_asl_terms",
+    "main_beam_cut",
+    "exact_point",
+    "group_patterns",
+    "diffuse",
+]
 
 
 #: (kernel, dtype of its first argument) already compiled or loaded in this process
