@@ -36,7 +36,9 @@ Usage::
 ``--max-time`` (default 300) is the longest limit; the profile stops there. ``--seeds N``
 (default 3) runs seeds 1..N; ``--cases`` and ``--methods`` take comma-separated names.
 ``--json`` merges the figures into FILE (e.g. benchmarks/results.json); ``--figure`` writes the
-PSL-against-time figure (default benchmarks/anytime.png; ``--figure ''`` for none).
+PSL-against-time figure (default benchmarks/anytime.png; ``--figure ''`` for none). To use
+both cores with one search each, split the cases over two processes, each with ``--raw
+FILE --figure ''``, then ``--merge FILE1,FILE2 --json ...`` prints and draws them together.
 """
 
 from __future__ import annotations
@@ -176,7 +178,16 @@ def main():
     ap.add_argument("--workers", type=int, default=1, help="evaluation processes")
     ap.add_argument("--json", default=None, help="merge the figures into this JSON file")
     ap.add_argument("--figure", default=str(HERE / "anytime.png"), help="PNG of PSL vs time")
+    ap.add_argument("--raw", default=None, help="also write every run, histories included, here")
+    ap.add_argument(
+        "--merge",
+        default=None,
+        help="comma-separated --raw files of earlier runs (e.g. cases split over two "
+        "processes): print their tables and targets, draw the figure, write --json; no runs",
+    )
     args = ap.parse_args()
+    if args.merge:
+        return merge(args)
     cases = [c for c in args.cases.split(",") if c]
     methods = [m for m in args.methods.split(",") if m]
     for name in cases:
@@ -250,6 +261,44 @@ def main():
                     flush=True,
                 )
         rows["longer_never_worse"] = checks
+    if args.raw:
+        raw = {"machine": machine, "workers": args.workers, "max_time_s": args.max_time}
+        raw.update(seeds=seeds, marks_s=marks, cases=results)
+        Path(args.raw).write_text(json.dumps(raw) + "\n")
+    finish(args, results, marks, machine, seeds)
+
+
+def merge(args):
+    """Tables, targets, figure and JSON from --raw files written by earlier runs."""
+    results, marks, machine, seeds = {}, None, None, None
+    for name in args.merge.split(","):
+        raw = json.loads(Path(name).read_text())
+        marks, machine, seeds = raw["marks_s"], raw["machine"], raw["seeds"]
+        args.max_time, args.workers = raw["max_time_s"], raw["workers"]
+        results.update(raw["cases"])
+    for case, rows in results.items():
+        print(f"\n{case}: best PSL [dB] after t s, median of {len(seeds)} seeds")
+        print(f"{'method':<14}" + "".join(f"{m:>7}s" for m in marks) + "   scored  evaluations")
+        for method, row in rows.items():
+            if method == "longer_never_worse":
+                for c in row:
+                    print(
+                        f"  {c['method']} seed {c['seed']}: separate short run "
+                        f"{c['short_db']:.2f} dB: " + ("never worse" if c["ok"] else "WORSE")
+                    )
+                continue
+            runs = row["runs"]
+            print(
+                f"{method:<14}"
+                + "".join(f"{_fmt(v)} " for v in row["median_db"])
+                + f"{_fmt(_median([r['psl_scored_db'] for r in runs]))}  "
+                + f"{int(_median([r['evaluations'] for r in runs])):>11,}"
+            )
+    finish(args, results, marks, machine, seeds)
+
+
+def finish(args, results, marks, machine, seeds):
+    """Print the targets, draw the figure and merge the figures into --json."""
     summary = targets(results, marks, args.max_time)
     if args.figure:
         figure(results, marks, args.figure)
