@@ -15,11 +15,11 @@ Cases (all half-wavelength, broadside unless said, sidelobe region outside the f
 Each method runs once per case and seed with the longest time limit and no evaluation limit;
 its best-so-far at each time comes from the run's convergence history (the tracker records
 every improvement with its time), so a row is one run, not one run per time. The kernels are
-compiled or loaded before the first run, so the times are the search's own. ``random`` and
-``density`` get ``draws = 10**9`` so that they too use the time; ``genetic-stall`` is the
-genetic search as it was before restarts (no time limit, so stall ends the run; hill-climbing
-polish; no iterative-Fourier starts): the same code path and figures as before, "today's
-figure" the others are compared with.
+compiled or loaded before the first run, so the times are the search's own. ``random`` gets
+``draws = 10**9`` so that it too uses the time (``density`` polishes until the limit);
+``genetic-stall`` is the genetic search as it was before restarts (no time limit, so stall
+ends the run; hill-climbing polish; no iterative-Fourier starts): the same code path and
+figures as before, "today's figure" the others are compared with.
 
 Then the claim "a longer run is never worse": ``genetic`` and ``anneal`` run again, separately,
 with a limit of 10 s (a sixth of ``--max-time`` when that is shorter than 60 s), and their best
@@ -109,7 +109,7 @@ def method_call(method):
     """(search method, options, stall ends the run) of a benchmark method name."""
     if method == "genetic-stall":  # as before restarts: no IFT starts, hill-climbing polish
         return "genetic", {"polish_anneal": 0, "seed_ift_fraction": 0.0}, True
-    if method in ("random", "density"):
+    if method == "random":
         return method, {"draws": 10**9}, False
     return method, {}, False
 

@@ -77,8 +77,10 @@ def test_scan_table_is_the_highest_sample_in_each_disc():
     uv = figures.uv_power_map(lay, 0.03, 1.5, scan_max=scan)
     table = figures.scan_psl_table(lay, 0.03, scan, steps=4, uv_map=uv)
     u, v, p_db = uv
-    _, _, exact, _ = figures.layout_engine(lay, 0.03, scan)
-    eng, *_ = figures.layout_engine(lay, 0.03, scan)
+    from thinning.analysis.score import layout_engine
+
+    _, _, exact, _ = layout_engine(lay, 0.03, scan)
+    eng, *_ = layout_engine(lay, 0.03, scan)
     psi, rad = figures.main_beam_radius(exact, min(eng.grid.du, eng.grid.dv), False, 1.5)
     uu, vv = np.meshgrid(u, v)
     ang = np.mod(np.arctan2(vv, uu), 2 * math.pi)

@@ -21,7 +21,8 @@ import numpy as np
 from ..analysis.score import layout_engine
 from ..engine.coverage import Coverage
 from ..units import wavelength as wavelength_of
-from .figures import FLOOR_DB, _db, _new_figure
+from .figures import _new_figure
+from .pattern_data import FLOOR_DB, _db
 
 __all__ = ["draw_zones", "mask_cut_data", "fig_mask_cuts", "mask_html"]
 

@@ -23,7 +23,9 @@ run starts from the best of those layouts (eight diffusion scans, eight dithered
 ``draws`` random draws, by default 16) and then, with ``polish`` (the default), improves it by
 swap moves aimed at its worst lobes (:func:`thinning.search.lobe_swaps.polish`) until the
 limits, trying the next start (then the best one shaken by a few random swaps) whenever the
-moves stop helping. Without ``polish`` it is the best of K draws as before.
+moves stop helping. With a time limit it keeps shaking and polishing until the limit (a
+stall ends only a run without one, as in every method); without one it stops after
+:data:`SHAKES` shaken copies. Without ``polish`` it is the best of K draws as before.
 
 Options
 -------
@@ -78,8 +80,10 @@ TAPERS = ("lp", "taylor", "uniform")
 LARGE_SITES = 4096
 #: Random systematic draws among the starts of a polished run (option ``draws``).
 START_DRAWS = 16
-#: Shaken copies of the best layout polished after the starts, at most.
+#: Shaken copies of the best layout polished after the starts, at most (without a time limit).
 SHAKES = 64
+#: Most bytes of starting layouts drawn at once (caps ``draws`` on a large panel).
+START_BYTES = 1 << 28
 #: Samples of the reference Taylor window that is interpolated at the sites.
 TAPER_SAMPLES = 2001
 
@@ -339,6 +343,7 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
     src = getattr(problem, "source", None)
     _positive_int(options, "batch", DEFAULT_BATCH, src)
     draws = _positive_int(options, "draws", START_DRAWS, src)
+    draws = min(draws, max(1, START_BYTES // max(1, problem.n_genes)))
     starts = starting_layouts(problem, p, rng, draws)
     if math.isfinite(tracker.remaining):
         starts = starts[: max(1, int(tracker.remaining))]
@@ -348,11 +353,13 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
     best = starts[order[0]]
     queue = [starts[i] for i in order]
     shake = max(4, problem.elements // 2000)
-    for k in range(len(queue) + SHAKES):
+    k = 0
+    while k < len(queue) + SHAKES or not tracker.stall_ends_run:
         if tracker.should_stop():
             return tracker.stop_reason()
         start = queue[k] if k < len(queue) else _shaken(problem, best, rng, shake)
         polish(problem, tracker, start, options)
         best = tracker.best_genome
-        tracker.record(round=k + 1)
+        k += 1
+        tracker.record(round=k)
     return tracker.stop_reason() or "stall"
