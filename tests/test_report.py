@@ -334,7 +334,7 @@ def _stress(model):
                 "phi_deg": 0.0,
                 "psl_db": -20.0,
                 "gain_dbi": 28.5,
-                "scan_loss_db": -0.62,
+                "scan_loss_db": 0.62,
                 "hpbw_deg": 5.7,
                 "hpbw_broadening": 1.15,
                 "cos_law": 1.1547,

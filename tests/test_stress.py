@@ -34,7 +34,7 @@ def test_scan_loss_follows_cos_theta(filled_24):
     rows = scan_table(filled_24, F0, math.radians(50), 1.0, steps=3, planes_deg=(0.0,))
     for r in rows:
         assert r["scan_loss_db"] == pytest.approx(
-            10 * math.log10(math.cos(math.radians(r["theta_deg"]))), abs=0.1
+            -10 * math.log10(math.cos(math.radians(r["theta_deg"]))), abs=0.1
         )
 
 

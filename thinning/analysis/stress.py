@@ -147,8 +147,9 @@ def scan_table(
 
     Returns
     -------
-    list of dict with theta_deg, phi_deg, psl_db, gain_dbi, scan_loss_db (the gain's change
-    from broadside, ≤ 0), hpbw_deg, hpbw_broadening (ratio to broadside), cos_law (1/cos θ₀)
+    list of dict with theta_deg, phi_deg, psl_db, gain_dbi, scan_loss_db (the gain's drop
+    from broadside, a positive number of dB, as ``scan_loss_max_db`` of ``score``), hpbw_deg,
+    hpbw_broadening (ratio to broadside), cos_law (1/cos θ₀)
     """
     lam = wavelength_of(frequency)
     arr = _Array(layout, lam)
@@ -206,7 +207,7 @@ def scan_table(
                 "phi_deg": phi_deg,
                 "psl_db": _db(det.psl),
                 "gain_dbi": _db(g),
-                "scan_loss_db": round(float(to_db(g / g0)), 4),
+                "scan_loss_db": round(float(to_db(g0 / g)), 4) + 0.0,
                 "hpbw_deg": None if bw is None else round(bw, 4),
                 "hpbw_broadening": None if (bw is None or bw0 is None) else round(bw / bw0, 5),
                 "cos_law": round(1 / math.cos(th), 5),

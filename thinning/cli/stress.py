@@ -39,7 +39,7 @@ def format_stress(r: dict) -> str:
             out.append(f"  beam at azimuth {s['azimuth_deg']:g}, elevation {s['elevation_deg']:g}:")
         out.append(
             f"  {s['theta_deg']:>6.1f} {s['phi_deg']:>5.0f} {s['psl_db']:>8.2f} "
-            f"{s['gain_dbi']:>9.2f} {-s['scan_loss_db'] + 0.0:>9.2f} "
+            f"{s['gain_dbi']:>9.2f} {s['scan_loss_db']:>9.2f} "
             f"{(s['hpbw_deg'] or float('nan')):>9.3f} "
             f"{(s['hpbw_broadening'] or float('nan')):>10.4f} {s['cos_law']:>6.4f}"
         )

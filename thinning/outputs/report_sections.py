@@ -518,9 +518,8 @@ def scan_html(table, refined_psl_db) -> str:
 
 
 def _loss(x) -> str:
-    """A scan loss as a positive number of dB: the gain's drop from broadside (the stress
-    analysis gives the gain change, negative)."""
-    return _num(-float(x) + 0.0, 2)
+    """A scan loss: the gain's drop from broadside, a positive number of dB."""
+    return _num(float(x) + 0.0, 2)
 
 
 def stress_html(stress) -> str:
