@@ -158,6 +158,7 @@ def stage_design(spec_path: str, out: str) -> dict:
     res["search_peak_mib"] = _peak_mib()
     _reset_peak()
     t = time.perf_counter()
+    problem.release()  # as design.search_and_score does after the search
     dirpath = prepare_output(out)
     layout, metrics = score_spec_layout(spec, sites, search.mask, str(dirpath / "layout.csv"))
     meta = layout_metadata(spec, search, metrics, len(sites), problem)

@@ -133,6 +133,7 @@ def search_and_score(spec: Spec, sites, problem, workers=1, progress=None, sourc
         workers=workers,
         progress=progress,
     )
+    problem.release()  # the search's caches: most of the memory on a large panel
     layout, metrics = score_spec_layout(spec, sites, search.mask, source)
     return search, layout, layout_metadata(spec, search, metrics, len(sites), problem)
 

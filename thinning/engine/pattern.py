@@ -266,6 +266,14 @@ class FFTPatternEngine(_Engine):
         self._buffers = {}
         self.compiled = compiled
 
+    def release(self) -> None:
+        """Drop what the engine keeps between calls (other discs, work buffers, the last
+        pattern, the region's windows and tables); everything is rebuilt when next needed."""
+        self._regions = {}
+        self._buffers = {}
+        self._last_power = None
+        self.region.release()
+
     def region_for(self, radius: float, centre=(0.0, 0.0)) -> SampledRegion:
         """A sidelobe disc of another radius or centre on this engine's grid (cached).
 

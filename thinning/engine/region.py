@@ -337,6 +337,12 @@ class SampledRegion:
         return w
 
     # -- tables for the compiled route ------------------------------------------------------
+    def release(self) -> None:
+        """Drop the main-beam windows and the compiled route's tables (rebuilt when next
+        asked for): on a 262,000-site panel they hold about 0.6 GB after a search."""
+        self._windows = {}
+        self._fast = None
+
     def fast_tables(self, dtype=np.float32) -> FastTables:
         """The region and its main-beam windows as flat arrays, for :mod:`thinning.engine.fastpath`
         (cached; the sample weights in ``dtype``)."""

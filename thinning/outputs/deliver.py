@@ -200,6 +200,9 @@ def write_deliverables(result, out: Path) -> list[Path]:
             "evaluations": baseline.evaluations,
             "runtime_s": round(baseline.runtime_s, 3),
         }
+        release = getattr(result.problem, "release", None)
+        if release is not None:
+            release()  # the caches the baseline built, before the built-array analysis
     stress = default_stress(
         result.layout,
         spec.frequency,

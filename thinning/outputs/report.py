@@ -32,6 +32,7 @@ from ..errors import OutputError
 from ..geometry.layout import Layout
 from ..io.atomic import atomic_write
 from . import report_sections as rs
+from .fill_image import LARGE_ELEMENTS
 from .svg_drawing import SVG_CSS, svg_controls
 
 
@@ -307,7 +308,9 @@ def report_for_layout(
     history : list of dict, optional   convergence records of the search
     baseline : SearchResult or dict, optional   best-of-random run
     provenance : dict, optional
-    layout_png : bytes, optional   a PNG drawing to show instead of the inline SVG one
+    layout_png : bytes, optional   a PNG drawing to show instead of the inline SVG one (above
+        :data:`thinning.outputs.fill_image.LARGE_ELEMENTS` elements the local-fill drawing is
+        drawn here when none is given)
     title : str
     metrics : dict, optional   the layout's figures if already computed (else scored here)
     stress : dict, optional    :func:`thinning.analysis.stress.stress_layout` output
@@ -385,7 +388,11 @@ def report_for_layout(
             metrics, {"psl_db": rs._get(baseline, "psl_db"), "asl_db": rs._get(baseline, "asl_db")}
         )
     svg = None
-    if layout_png is None:
+    if layout_png is None and len(layout) > LARGE_ELEMENTS:
+        # an inline SVG of every element would be tens of MB (131,000 elements: 28 MB and
+        # 0.4 GB to build); the drawing of the local fill stands for them, as in layout.png
+        layout_png = fg.png_bytes(fg.fig_layout(layout, aperture, site_xy))
+    elif layout_png is None:
         svg = layout_svg(layout, aperture, site_xy, footprint_mm, title)
     pngs = {k: fg.png_bytes(f) for k, f in figs.items()}
     return build_report(

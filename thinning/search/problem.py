@@ -556,6 +556,16 @@ class ThinningProblem:
         self._swap_cache = st
         return st
 
+    def release(self) -> None:
+        """Drop the caches a search built (the engine's windows and tables, the swap moves'
+        stored transforms, the envelope's work arrays): after a search on a large panel they
+        are most of the process's memory, and the outputs do not need them. The problem stays
+        usable; each cache is rebuilt on next use."""
+        self.engine.release()
+        self._swap_cache = None
+        self._swap_shared = None
+        self.__dict__.pop("_envelope_cache", None)
+
     def combine(self, psl_db, asl_db) -> np.ndarray:
         """The objective J from PSL and ASL  [dB]."""
         w = self.secondary_weight
