@@ -406,7 +406,7 @@ def main():
         size, secs = item.split(":")
         spec = tmp / f"limit-{size}.toml"
         spec.write_text(spec_text(RADII[size], 0.5, float(secs)))
-        for method in ("random", "density", "genetic", "ift"):
+        for method in ("random", "density", "genetic", "ift", "anneal"):
             r = run_stage("limit", spec, method)
             r["size"] = size
             limits.append(r)

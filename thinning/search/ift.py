@@ -60,7 +60,9 @@ iterations : int
     settle in 4–6 steps on average; on an 800-site planar aperture a batch of 32 trials runs
     about 19 steps until its last trial settles.
 ift_batch : int
-    Trials iterated together in one stack of FFTs and evaluated together (default 32).
+    Trials iterated together in one stack of FFTs and evaluated together (default 32, fewer on
+    a large panel: at most :data:`BATCH_SAMPLES` transform samples in a stack, so that one
+    step and one evaluation of a batch stay short against a time limit; 65,000 sites: 4).
 ift_sll_db : float  [dB]
     A fixed clip level for every trial, as a positive number of dB below the main-beam peak;
     0 (the default) draws a level per trial as above.
@@ -93,6 +95,8 @@ __all__ = [
 
 #: Trials when the run has neither an evaluation nor a time limit.
 DEFAULT_TRIALS = 1000
+#: Trials per batch unless ``ift_batch`` says, and the most transform samples in one batch.
+DEFAULT_BATCH, BATCH_SAMPLES = 32, 1 << 22
 #: Range of Δ, the clip level below the expected random-thinning ASL  [dB].
 LEVEL_RANGE_DB = (-2.0, 20.0)
 #: Standard deviation of Δ about the best trial's Δ  [dB].
@@ -153,7 +157,8 @@ class IFTOptions:
 
         self.trials = integer("trials", None)
         self.iterations = integer("iterations", 30)
-        self.batch = integer("ift_batch", 32)
+        self.batch = integer("ift_batch", None)
+
         self.sll_db = real(
             "ift_sll_db",
             0.0,
@@ -164,6 +169,14 @@ class IFTOptions:
         self.density_fraction = real(
             "ift_density_fraction", 0.0, 1.0, "expected a share of the trials between 0 and 1"
         )
+
+    def batch_for(self, problem) -> int:
+        """Trials per batch: ``ift_batch``, else :data:`DEFAULT_BATCH` capped at
+        :data:`BATCH_SAMPLES` transform samples."""
+        if self.batch is not None:
+            return self.batch
+        g = problem.engine.grid
+        return int(min(DEFAULT_BATCH, max(2, BATCH_SAMPLES // (g.nr * g.nc))))
 
 
 class IFTPlan:
@@ -336,8 +349,9 @@ def ift_genomes(problem, rng: np.random.Generator, k: int, options: dict | None 
     opts = IFTOptions(options, getattr(problem, "source", None))
     plan = IFTPlan(problem)
     out = np.zeros((k, problem.n_genes), dtype=bool)
-    for s in range(0, k, opts.batch):
-        n = min(opts.batch, k - s)
+    batch = opts.batch_for(problem)
+    for s in range(0, k, batch):
+        n = min(batch, k - s)
         start = _starts(plan, rng, n, opts.density_fraction, options)
         level, _ = _levels(plan, opts, rng, n, None)
         out[s : s + n] = iterate(plan, start, level, opts.iterations)
@@ -373,8 +387,9 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
         total = DEFAULT_TRIALS
     done = 0
     best, best_delta = math.inf, None
+    batch = opts.batch_for(problem)
     while total is None or done < total:
-        k = int(min(opts.batch, tracker.remaining, math.inf if total is None else total - done))
+        k = int(min(batch, tracker.remaining, math.inf if total is None else total - done))
         if k <= 0:
             break
         start = _starts(plan, rng, k, opts.density_fraction, options)

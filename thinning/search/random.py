@@ -8,7 +8,9 @@ and the best of K draws is the baseline every other method is compared with.
 Options
 -------
 batch : int
-    Genomes drawn and evaluated together (default 64).
+    Genomes drawn and evaluated together (default 64; on a large grid the problem's own
+    transform batch, e.g. 4 at 262,000 sites, so that the limits are checked often enough
+    to keep a time limit).
 draws : int
     K, used only when the run has no evaluation limit (default 1000); with a limit, K is the
     limit.
@@ -22,6 +24,7 @@ from collections.abc import Callable
 import numpy as np
 
 from ..errors import SpecError, where
+from .problem import BATCH
 
 __all__ = ["run", "best_of_draws", "DEFAULT_BATCH", "DEFAULT_DRAWS"]
 
@@ -65,7 +68,8 @@ def best_of_draws(
         one batch is evaluated.
     """
     src = getattr(problem, "source", None)
-    batch = _positive_int(options, "batch", DEFAULT_BATCH, src)
+    default = DEFAULT_BATCH if problem.batch >= BATCH else problem.batch
+    batch = _positive_int(options, "batch", default, src)
     if math.isinf(tracker.remaining):
         total = _positive_int(options, "draws", DEFAULT_DRAWS, src)
     else:
