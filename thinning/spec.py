@@ -8,6 +8,7 @@ reported in one line naming the file, the key and the value. Units are those of 
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import math
 import tomllib
@@ -21,6 +22,7 @@ from .engine.mask import mask_from_spec
 from .errors import SpecError, where
 from .geometry.aperture import Aperture
 from .geometry.lattice import LATTICE_KINDS, Lattice, Sites, grating_lobe_positions
+from .geometry.tiles import TILE_KEYS, tiles_from_spec
 from .search import METHODS
 from .search.density import LARGE_SITES
 from .search.problem import OBJECTIVES, SYMMETRIES, ThinningProblem, outer_ring
@@ -87,8 +89,17 @@ KEYS = {
         "element_exponent",
         "element_pattern",
     },
-    "aperture": {"outline_mm", "holes_mm", "edge_clearance_mm", "sites"},
-    "budget": {"elements", "fill"},
+    "aperture": {
+        "outline_mm",
+        "holes_mm",
+        "edge_clearance_mm",
+        "sites",
+        "dxf",
+        "dxf_outline_layer",
+        "dxf_holes_layer",
+    },
+    "budget": {"elements", "fill", "chips"},
+    "tiles": TILE_KEYS,
     "scan": {"max_deg", "azimuth_deg", "elevation_deg"},
     "band": {"ghz", "steering"},
     "search": {
@@ -205,6 +216,7 @@ class Spec:
     mask: tuple = ()
     element: object = None
     hpbw_max: float | None = None
+    tiles: object = None
 
     @property
     def wavelength(self) -> float:
@@ -256,6 +268,8 @@ class Spec:
         for the panel's size (:func:`default_method`)."""
         if self.search_method is not None:
             return self.search_method
+        if self.tiles is not None and self.tiles.patterns is not None:
+            return "modular"  # boards and their assignment: the one method that keeps them
         return default_method(len(self.sites()))
 
     @property
@@ -263,6 +277,8 @@ class Spec:
         """The method as the progress names it (saying when the size chose it)."""
         if self.search_method is not None:
             return self.search_method
+        if self.method == "modular":
+            return "modular (the method of tiles.patterns)"
         m = len(self.sites())
         return f"{self.method} (the default for {m:,} sites)"
 
@@ -311,6 +327,7 @@ class Spec:
             coverage=self.coverage if self.has_scan_set else None,
             limits=self.limits(n),
             hpbw_max=self.hpbw_max,
+            tiles=self.tiles,
         )
 
     def constraint_masks(self, sites: Sites) -> tuple[np.ndarray, np.ndarray]:
@@ -350,6 +367,24 @@ class Spec:
                 "is both pinned and forbidden"
             )
         return pinned, forbidden
+
+
+def _spec_dir(source: str) -> Path:
+    """The folder a spec's relative paths (a drawing, an element table) are read from."""
+    return Path(source).parent
+
+
+def panel_from_spec_table(table: dict, spec_dir: Path, source: str):
+    """The outline and holes of ``[aperture] dxf`` (:mod:`thinning.geometry.dxf_panel`), or
+    None when the spec types them."""
+    if "dxf" not in table:
+        for key in ("dxf_outline_layer", "dxf_holes_layer"):
+            if key in table:
+                raise SpecError(f"{where(source, f'aperture.{key}')}needs aperture.dxf")
+        return None
+    from .geometry import dxf_panel
+
+    return dxf_panel.panel_from_spec_table(table, spec_dir, source)
 
 
 def load_spec(path) -> Spec:
@@ -513,18 +548,41 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         n_sites = _get(raw, "aperture", "sites", src, required=True)
         n_sites = _number(n_sites, src, "aperture.sites", lo=2, integer=True)
     else:
-        outline = _get(raw, "aperture", "outline_mm", src, required=True)
-        holes = _get(raw, "aperture", "holes_mm", src, default=[])
+        drawing = panel_from_spec_table(raw.get("aperture", {}), _spec_dir(src), src)
+        if drawing is not None:
+            outline, holes = drawing.outline_mm, drawing.holes_mm
+            warnings.extend(drawing.notes)
+        else:
+            outline = _get(raw, "aperture", "outline_mm", src, required=True)
+            holes = _get(raw, "aperture", "holes_mm", src, default=[])
         clearance = _get(raw, "aperture", "edge_clearance_mm", src, default=0.0)
         _check_holes_inside(outline, holes, src)
         aperture = Aperture.from_mm(outline, holes, clearance, src)
 
+    tiles = None
+    if "tiles" in raw:
+        tiles = tiles_from_spec(raw["tiles"], src, _number, _choice, kind)
     elements = _get(raw, "budget", "elements", src)
     fill = _get(raw, "budget", "fill", src)
+    chips = _get(raw, "budget", "chips", src)
+    if chips is not None:
+        if tiles is None or tiles.channels_per_chip is None:
+            raise SpecError(
+                f"{where(src, 'budget.chips')}needs [tiles] channels_per_chip (the elements "
+                "a chip feeds)"
+            )
+        chips = _number(chips, src, "budget.chips", lo=1, integer=True)
+        if elements is not None or fill is not None:
+            raise SpecError(
+                f"{where(src, 'budget')}give one of elements, fill or chips, not several"
+            )
+        elements = chips * tiles.channels_per_chip
+        if not tiles.whole_chips:  # a budget in chips buys whole chips only
+            tiles = dataclasses.replace(tiles, whole_chips=True)
     if (elements is None) == (fill is None):
         raise SpecError(
-            f"{where(src, 'budget')}give exactly one of elements (a count) or fill "
-            "(a fraction of the sites)"
+            f"{where(src, 'budget')}give exactly one of elements (a count), fill "
+            "(a fraction of the sites) or, with [tiles], chips"
         )
     if elements is not None:
         elements = _number(elements, src, "budget.elements", lo=2, integer=True)
@@ -534,6 +592,16 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
     method = _get(raw, "search", "method", src)
     if method is not None:
         method = _choice(method, (*METHODS, "pareto"), src, "search.method")
+    patterned = tiles is not None and tiles.patterns is not None
+    if method is not None and patterned != (method == "modular"):
+        raise SpecError(
+            f"{where(src, 'search.method')}{method!r}: "
+            + (
+                "tiles.patterns is searched by the 'modular' method only"
+                if patterned
+                else "'modular' needs [tiles] patterns"
+            )
+        )
     seed = _number(
         _get(raw, "search", "seed", src, default=0), src, "search.seed", lo=0, integer=True
     )
@@ -726,6 +794,7 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         mask=mask,
         element=element,
         hpbw_max=hpbw_max,
+        tiles=tiles,
     )
 
 

@@ -51,6 +51,7 @@ class DesignResult:
     files: list
     problem: object = None
     sites: object = None
+    tiling: object = None
 
 
 def prepare_output(out_dir) -> Path:
@@ -173,7 +174,12 @@ def robust_summary(spec: Spec, problem, layout: Layout) -> dict:
 
 
 def run_design(
-    spec: Spec, out_dir, workers: int | None = None, progress=None, extra_outputs=None
+    spec: Spec,
+    out_dir,
+    workers: int | None = None,
+    progress=None,
+    extra_outputs=None,
+    compare_unconstrained: bool | None = None,
 ) -> DesignResult:
     """Search the spec's problem and write the layout files into ``out_dir``.
 
@@ -186,6 +192,10 @@ def run_design(
     extra_outputs : callable(DesignResult, Path) -> list of Path, optional
         Writes further files (drawings, report) into the given staging folder, after
         ``layout.csv`` and before ``layout.json``.
+    compare_unconstrained : bool, optional
+        With [tiles]: also run the design without the tile rules (same budget, method by
+        size, same limits) and give the cost of the constraint (default: the spec's
+        ``tiles.compare_unconstrained``).
 
     Raises
     ------
@@ -212,19 +222,91 @@ def run_design(
     if problem.robust is not None:
         meta["robust"] = robust_summary(spec, problem, layout)
     result = DesignResult(spec, search, layout, meta, [], problem, sites)
+    if problem.tile_grid is not None:
+        if compare_unconstrained is None:
+            compare_unconstrained = spec.tiles.compare_unconstrained
+        result.tiling = tiled_figures(spec, problem, layout, search, meta, compare_unconstrained)
     extra = None if extra_outputs is None else (lambda stage: extra_outputs(result, stage))
-    result.files = write_run_files(out, layout, meta, extra)
+    result.files = write_run_files(out, layout, meta, extra, result.tiling)
     return result
 
 
-def write_run_files(out: Path, layout: Layout, meta: dict, extra=None) -> list[Path]:
-    """Write one run's files into ``out`` as one set: ``layout.csv``, whatever ``extra``
-    writes (given the staging folder; returns the paths it wrote), then ``layout.json`` with
-    ``files``, the SHA-256 of every other file. Returns the paths in ``out``, csv and json
-    first."""
+def tiled_figures(spec: Spec, problem, layout, search, meta, compare: bool):
+    """The tiles and chips of a tiled design (a :class:`thinning.geometry.tiles.Tiling`), and
+    ``meta["tiles"]``: counts, boards, chips and, when ``compare``, the cost of the
+    constraint against an unconstrained design of the same budget and limits."""
+    import dataclasses
+
+    from .tile_figures import tile_summary
+
+    tiling = tiling_of(spec, problem.sites, search.mask, problem.tile_grid)
+    free = None
+    if compare:
+        plain = dataclasses.replace(spec, tiles=None, search_method=_free_method(spec))
+        plain_problem = plain.problem(problem.sites)
+        run = run_method(
+            plain_problem,
+            plain.method,
+            spec.seed,
+            plain.options if plain.search_method == spec.search_method else {},
+            max_evaluations=spec.max_evaluations,
+            time_limit_s=spec.time_limit_s,
+        )
+        plain_problem.release()
+        _, m = score_spec_layout(plain, problem.sites, run.mask)
+        free = {
+            "method": plain.method,
+            "psl_db": m["psl_db"],
+            "asl_db": m["asl_db"],
+            "evaluations": int(run.evaluations),
+            "time_limit_s": spec.time_limit_s,
+            "runtime_s": round(float(run.runtime_s), 3),
+        }
+    meta["tiles"] = tile_summary(tiling, layout, spec.wavelength, free, meta["psl_db"])
+    meta["notes"] = list(meta.get("notes", [])) + meta["tiles"]["notes"]
+    return tiling
+
+
+def tiling_of(spec: Spec, sites, mask, grid=None):
+    """The tiles and chips (:class:`thinning.geometry.tiles.Tiling`) of a layout of a tiled
+    spec; ``grid``: the problem's tile grid (default: built from the spec's sites, usable =
+    not forbidden)."""
+    from ..geometry.chips import group_chips
+    from ..geometry.tiles import TileGrid, Tiling
+
+    if grid is None:
+        _, forbidden = spec.constraint_masks(sites)
+        grid = TileGrid(sites, spec.tiles, spec.source, usable=~forbidden)
+    chips = None
+    if grid.rules.channels_per_chip is not None:
+        site = np.flatnonzero(mask)
+        chips = group_chips(
+            sites.x[site], sites.y[site], grid.tile_of_site[site], grid.rules.channels_per_chip
+        )
+    return Tiling.of_mask(grid, mask, chips)
+
+
+def _free_method(spec: Spec):
+    """The method of the unconstrained comparison: the spec's, unless it is the tiles-only
+    ``modular`` (then the default for the size)."""
+    return None if spec.method == "modular" else spec.search_method
+
+
+def write_run_files(out: Path, layout: Layout, meta: dict, extra=None, tiling=None) -> list[Path]:
+    """Write one run's files into ``out`` as one set: ``layout.csv`` (with ``tile``, ``chip``
+    and ``channel`` columns and ``tiles.csv`` when tiled), whatever ``extra`` writes (given
+    the staging folder; returns the paths it wrote), then ``layout.json`` with ``files``, the
+    SHA-256 of every other file. Returns the paths in ``out``, csv and json first."""
     with file_set(out, RECORD) as stage:
-        write_layout_csv(stage / "layout.csv", layout)
         names = ["layout.csv", RECORD]
+        if tiling is None:
+            write_layout_csv(stage / "layout.csv", layout)
+        else:
+            from ..io.tiles_csv import tile_columns, write_tiles_csv
+
+            write_layout_csv(stage / "layout.csv", layout, extra_columns=tile_columns(tiling))
+            write_tiles_csv(stage / "tiles.csv", tiling)
+            names.append("tiles.csv")
         if extra is not None:
             names += [Path(f).name for f in extra(stage) or ()]
         meta["files"] = file_digests(stage, exclude=(RECORD,))

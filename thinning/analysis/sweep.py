@@ -30,6 +30,7 @@ interrupted sweep resumes where it stopped and a finished one gives the same ``s
 from __future__ import annotations
 
 import csv
+import dataclasses
 import io
 import json
 import math
@@ -48,7 +49,14 @@ from ..io.fileset import file_digests, file_set
 from ..spec import Spec, load_spec
 from ..units import to_db
 from .cluster import executor_for, spec_from_text
-from .design import prepare_output, score_spec_layout, search_and_score, write_run_files
+from .design import (
+    prepare_output,
+    score_spec_layout,
+    search_and_score,
+    tiled_figures,
+    tiling_of,
+    write_run_files,
+)
 from .requirements import all_met, describe, judge
 from .score import layout_engine
 
@@ -127,6 +135,44 @@ def parse_budgets(elements: str | None, fill: str | None, sites: int) -> list[in
     if bad:
         raise SpecError(f"--elements {bad[0]}: budgets must lie between 2 and the {sites} sites")
     return sorted(out)
+
+
+def tile_budgets(spec: Spec, sites, chips: str | None, per_tile: str | None, k_of: dict):
+    """Element budgets of ``--chips`` (k chips: k × channels_per_chip elements) and
+    ``--per-tile`` (k per tile: :func:`per_tile_budget`); ``k_of`` gets budget → (how, k)."""
+    out = []
+    if chips:
+        c = spec.tiles.channels_per_chip
+        if c is None:
+            raise SpecError(f"--chips: needs tiles.channels_per_chip in {spec.source}")
+        for k in _int_list(chips, "--chips", 1, len(sites) // c):
+            out.append(k * c)
+            k_of[k * c] = ("chips", k)
+    if per_tile:
+        nx, ny = spec.tiles.size
+        for k in _int_list(per_tile, "--per-tile", 1, nx * ny):
+            n = per_tile_budget(spec, sites, k)
+            out.append(n)
+            k_of[n] = ("per_tile", k)
+    return out
+
+
+def _int_list(text: str, flag: str, lo: int, hi: int) -> list[int]:
+    """A list (1,2,3) or range (START:STOP:STEP, STOP included) of integers in [lo, hi]."""
+    try:
+        if ":" in text:
+            a, b, c = (int(v) for v in text.split(":"))
+            vals = list(range(a, b + 1, c)) if c > 0 else []
+        else:
+            vals = [int(v) for v in text.split(",") if v.strip()]
+    except ValueError:
+        raise SpecError(
+            f"{flag} {text!r}: expected a list like 8,12,16 or a range like 8:16:4"
+        ) from None
+    bad = [v for v in vals if not lo <= v <= hi]
+    if not vals or bad:
+        raise SpecError(f"{flag} {text!r}: values must lie between {lo} and {hi}")
+    return vals
 
 
 def independent_samples(
@@ -303,27 +349,58 @@ def _done(folder: Path, spec: Spec, n: int) -> dict | None:
     return meta if same else None
 
 
-def _design_budget(spec_text: str, source: str, n: int) -> tuple[np.ndarray, dict]:
+def budget_spec(spec: Spec, n: int, how: tuple | None = None) -> Spec:
+    """The spec at budget ``n``; ``how`` = ("per_tile", k): with ``tiles.elements_per_tile =
+    k``; ("chips", k): in whole chips."""
+    spec.budget_elements, spec.budget_fill = n, None
+    if how is not None and how[0] == "per_tile":
+        spec.tiles = dataclasses.replace(
+            spec.tiles, elements_per_tile=how[1], max_elements_per_tile=None
+        )
+    elif how is not None:
+        spec.tiles = dataclasses.replace(spec.tiles, whole_chips=True)
+    return spec
+
+
+def per_tile_budget(spec: Spec, sites, k: int) -> int:
+    """The element budget of k elements per tile: k in every full tile, and every partial
+    tile at its limit (k scaled by the share of positions it keeps, rounded down)."""
+    from ..geometry.tiles import TileGrid
+
+    rules = dataclasses.replace(spec.tiles, elements_per_tile=k, max_elements_per_tile=None)
+    _, forbidden = spec.constraint_masks(sites)
+    return int(TileGrid(sites, rules, spec.source, usable=~forbidden).limit.sum())
+
+
+def _design_budget(
+    spec_text: str, source: str, n: int, per_tile: tuple | None = None
+) -> tuple[np.ndarray, dict]:
     """One budget (a work unit, run wherever the runner puts it): design and score.
 
     Takes the spec's text, not its path, and returns the site mask and the contents of
     layout.json; the caller writes the files, so a remote worker needs no shared folder.
     """
-    spec = spec_from_text(spec_text, source)
-    spec.budget_elements, spec.budget_fill = n, None
+    spec = budget_spec(spec_from_text(spec_text, source), n, per_tile)
     sites = spec.sites()
     problem = spec.problem(sites)
-    search, _, meta = search_and_score(spec, sites, problem)
+    search, layout, meta = search_and_score(spec, sites, problem)
     if spec.method == "density":
         meta["method_expected_asl_db"] = round(float(to_db(density_expected_asl(problem, spec))), 6)
+    if problem.tile_grid is not None:
+        tiled_figures(spec, problem, layout, search, meta, False)
     return search.mask, meta
 
 
-def _write_budget(folder: Path, sites, mask, meta: dict) -> None:
-    """The sub-folder of one budget, as one set: layout.csv, then layout.json (which marks
-    it done)."""
+def _write_budget(folder: Path, spec: Spec, sites, mask, meta: dict, per_tile=None) -> None:
+    """The sub-folder of one budget, as one set: layout.csv (and tiles.csv with tiles),
+    then layout.json (which marks it done)."""
     folder.mkdir(parents=True, exist_ok=True)
-    write_run_files(folder, Layout.from_sites(sites, mask), meta)
+    tiling = None
+    if spec.tiles is not None:
+        tiling = tiling_of(
+            budget_spec(dataclasses.replace(spec), meta["elements"], per_tile), sites, mask
+        )
+    write_run_files(folder, Layout.from_sites(sites, mask), meta, tiling=tiling)
 
 
 def _pareto_front(spec: Spec, sites, budgets, out: Path, progress) -> tuple[dict, list]:
@@ -440,6 +517,8 @@ def run_sweep(
     progress=None,
     cluster: str | None = None,
     extra_outputs=None,
+    budgets_chips: str | None = None,
+    budgets_per_tile: str | None = None,
 ) -> SweepResult:
     """Run the spec at every budget and write sweep.csv (and the per-budget folders).
 
@@ -453,10 +532,18 @@ def run_sweep(
     spec = load_spec(spec_path)
     sites = spec.sites()
     m = len(sites)
-    budgets = parse_budgets(budgets_elements, budgets_fill, m)
+    per_tile: dict[int, tuple] = {}  # budget -> how it was asked for
+    budgets = []
+    if budgets_elements or budgets_fill or not (budgets_chips or budgets_per_tile):
+        budgets = parse_budgets(budgets_elements, budgets_fill, m)
+    if budgets_chips or budgets_per_tile:
+        if spec.tiles is None:
+            flag = "--chips" if budgets_chips else "--per-tile"
+            raise SpecError(f"{flag}: needs a [tiles] table in {spec.source}")
+        budgets += tile_budgets(spec, sites, budgets_chips, budgets_per_tile, per_tile)
+        budgets = sorted(set(budgets))
     for n in budgets:  # every budget must be feasible (symmetry, pins) before any output
-        s2 = load_spec(spec_path)
-        s2.budget_elements, s2.budget_fill = n, None
+        s2 = budget_spec(load_spec(spec_path), n, per_tile.get(n))
         try:
             s2.problem(sites)
         except SpecError as exc:
@@ -479,9 +566,15 @@ def run_sweep(
         text = Path(spec_path).read_bytes().decode("utf-8")
         k = len(todo)
         with executor_for(min(workers, k), cluster) as runner:
-            done = runner.imap(_design_budget, [text] * k, [str(spec_path)] * k, todo)
+            done = runner.imap(
+                _design_budget,
+                [text] * k,
+                [str(spec_path)] * k,
+                todo,
+                [per_tile.get(n) for n in todo],
+            )
             for n, (mask, meta) in zip(todo, done, strict=True):
-                _write_budget(_budget_folder(out, n), sites, mask, meta)
+                _write_budget(_budget_folder(out, n), spec, sites, mask, meta, per_tile.get(n))
                 metas[n] = meta
                 if progress:
                     progress(n, meta)

@@ -63,9 +63,16 @@ def summary_line(result) -> str:
     help="Processes evaluating each generation (default: the spec's, or 1). "
     "The result is the same for any number.",
 )
+@click.option(
+    "--compare-unconstrained",
+    is_flag=True,
+    default=None,
+    help="With [tiles]: also design the panel without the tile rules (same budget and "
+    "limits) and give the cost of the constraint in layout.json and the report.",
+)
 @click.option("--quiet", is_flag=True, help="No progress on stderr.")
 @click.pass_context
-def design(ctx, spec_toml, out_dir, workers, quiet):
+def design(ctx, spec_toml, out_dir, workers, compare_unconstrained, quiet):
     """Thin the spec's panel to its exact element budget with the lowest sidelobes.
 
     Progress goes to stderr; Ctrl-C or the spec's time limit end the search with the best
@@ -82,7 +89,12 @@ def design(ctx, spec_toml, out_dir, workers, quiet):
     figure = "worst excess over the mask" if spec.mask else "best PSL"
     progress = None if quiet else format_progress(spec.method_label, figure)
     result = run_design(
-        spec, out_dir, workers=workers, progress=progress, extra_outputs=_extra_outputs()
+        spec,
+        out_dir,
+        workers=workers,
+        progress=progress,
+        extra_outputs=_extra_outputs(),
+        compare_unconstrained=compare_unconstrained or None,
     )
     if not quiet and sys.stderr.isatty():
         sys.stderr.write("\n")

@@ -19,6 +19,21 @@ __all__ = ["sweep"]
 )
 @click.option("--fill", default=None, metavar="LIST", help="Budgets as fill fractions: 0.3,0.5.")
 @click.option(
+    "--chips",
+    default=None,
+    metavar="LIST|START:STOP:STEP",
+    help="With [tiles] channels_per_chip: budgets in whole chips (k chips = k × channels "
+    "elements, every tile a whole number of chips).",
+)
+@click.option(
+    "--per-tile",
+    "per_tile",
+    default=None,
+    metavar="LIST|START:STOP:STEP",
+    help="With [tiles]: budgets as elements per full tile (identical counts; partial tiles "
+    "at their scaled limit).",
+)
+@click.option(
     "--out",
     "out_dir",
     required=True,
@@ -41,7 +56,7 @@ __all__ = ["sweep"]
     "thinning[cluster]; --workers is then ignored; results do not depend on it).",
 )
 @click.option("--quiet", is_flag=True, help="No progress on stderr.")
-def sweep(spec_toml, elements, fill, out_dir, workers, cluster, quiet):
+def sweep(spec_toml, elements, fill, chips, per_tile, out_dir, workers, cluster, quiet):
     """Run the spec's method at several budgets and compare them with theory."""
     from ..analysis.sweep import run_sweep
     from ..outputs.sweep_page import answer_text, write_sweep_outputs
@@ -63,6 +78,8 @@ def sweep(spec_toml, elements, fill, out_dir, workers, cluster, quiet):
         progress=progress,
         cluster=cluster,
         extra_outputs=write_sweep_outputs,
+        budgets_chips=chips,
+        budgets_per_tile=per_tile,
     )
     files = res.files
     if res.reused:

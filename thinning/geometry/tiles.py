@@ -205,7 +205,9 @@ class TileGrid:
                 "per tile must be even, so that every tile has the same row offsets"
             )
         if lat.kind == "linear" and ny != 1:
-            raise SpecError(f"{where(src, 'tiles.size')}[{nx}, {ny}]: a linear array's tiles are 1 row")
+            raise SpecError(
+                f"{where(src, 'tiles.size')}[{nx}, {ny}]: a linear array's tiles are 1 row"
+            )
         if lat.kind == "triangular" and self.rules.orientations == "all":
             raise SpecError(
                 f"{where(src, 'tiles.orientations')}'all': on a triangular lattice only the "
@@ -373,3 +375,69 @@ class Tiling:
     def of_mask(cls, grid: TileGrid, mask, chips=None) -> Tiling:
         site = np.flatnonzero(np.asarray(mask, bool))
         return cls(grid, grid.describe(mask), site, grid.tile_of_site[site], chips)
+
+
+TILE_KEYS = {
+    "size",
+    "origin_mm",
+    "elements_per_tile",
+    "max_elements_per_tile",
+    "channels_per_chip",
+    "whole_chips",
+    "patterns",
+    "orientations",
+    "compare_unconstrained",
+}
+
+
+def tiles_from_spec(table, src, number, choice, kind: str) -> TileRules:
+    """The :class:`TileRules` of a spec's ``[tiles]`` table (``number``/``choice``: the spec's
+    value checkers), every key checked with its field named."""
+    size = table.get("size")
+    if size is None:
+        raise SpecError(f"{where(src, 'tiles.size')}missing: give [nx, ny] sites per tile")
+    if isinstance(size, int) and not isinstance(size, bool):
+        size = [size, size if kind != "linear" else 1]
+    if not (isinstance(size, list) and len(size) in (1, 2)):
+        raise SpecError(f"{where(src, 'tiles.size')}{size!r}: expected [nx, ny]")
+    if len(size) == 1:
+        size = [size[0], 1]
+    nx, ny = (number(v, src, "tiles.size", lo=1, integer=True) for v in size)
+    origin = table.get("origin_mm")
+    if origin is not None:
+        if not (isinstance(origin, list) and len(origin) == 2):
+            raise SpecError(f"{where(src, 'tiles.origin_mm')}{origin!r}: expected [x, y] in mm")
+        origin = tuple(number(v, src, "tiles.origin_mm") for v in origin)
+    exact = table.get("elements_per_tile")
+    cap = table.get("max_elements_per_tile")
+    if exact is not None and cap is not None:
+        raise SpecError(
+            f"{where(src, 'tiles')}give one of elements_per_tile (identical counts) or "
+            "max_elements_per_tile (a capacity), not both"
+        )
+    if exact is not None:
+        exact = number(exact, src, "tiles.elements_per_tile", lo=1, hi=nx * ny, integer=True)
+    if cap is not None:
+        cap = number(cap, src, "tiles.max_elements_per_tile", lo=1, hi=nx * ny, integer=True)
+    chan = table.get("channels_per_chip")
+    if chan is not None:
+        chan = number(chan, src, "tiles.channels_per_chip", lo=1, hi=nx * ny, integer=True)
+    whole = table.get("whole_chips", False)
+    compare = table.get("compare_unconstrained", False)
+    for key, v in (("whole_chips", whole), ("compare_unconstrained", compare)):
+        if not isinstance(v, bool):
+            raise SpecError(f"{where(src, f'tiles.{key}')}{v!r}: expected true or false")
+    if whole and chan is None:
+        raise SpecError(f"{where(src, 'tiles.whole_chips')}needs tiles.channels_per_chip")
+    for key, k in (("elements_per_tile", exact), ("max_elements_per_tile", cap)):
+        if whole and k is not None and k % chan:
+            raise SpecError(
+                f"{where(src, f'tiles.{key}')}{k}: not a whole number of {chan}-channel chips"
+            )
+    patterns = table.get("patterns")
+    if patterns is not None:
+        patterns = number(patterns, src, "tiles.patterns", lo=1, integer=True)
+    orient = choice(table.get("orientations", "none"), ORIENTATION_SETS, src, "tiles.orientations")
+    return TileRules(
+        (nx, ny), origin, exact, cap, chan, bool(whole), patterns, orient, bool(compare)
+    )

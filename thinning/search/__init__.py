@@ -40,7 +40,7 @@ __all__ = [
     "method_module",
 ]
 
-METHODS = ("random", "density", "genetic", "ift", "anneal")
+METHODS = ("random", "density", "genetic", "ift", "anneal", "modular")
 
 #: Reasons to stop that depend on the machine's speed (wall time, a Ctrl-C): a run that ends
 #: by any other (its evaluation budget, a stall, its generations or trials) is reproducible.

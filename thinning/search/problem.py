@@ -158,6 +158,8 @@ class ThinningProblem:
     limits: object = None
     hpbw_max: float | None = None
     envelope: object = None
+    tiles: object = None
+    tile_counts: object = None
 
     def __post_init__(self):
         m = len(self.sites)
@@ -236,8 +238,61 @@ class ThinningProblem:
         gene_of_orbit[free_orbits] = np.arange(free_orbits.size)
         self.site_gene = gene_of_orbit[orbit_id]
         self.engine = self._make_engine()
+        self.tile_grid = None
+        if self.tiles is not None:
+            from ..geometry.tiles import TileGrid
+
+            self.tile_grid = TileGrid(self.sites, self.tiles, src, usable=self.available_sites)
+            self._partners = partners
+            if self.tiles.mode != "patterns":
+                self.apply_tile_counts(self.tile_counts)
         if self.robust is not None:
             self._init_robust()
+
+    def apply_tile_counts(self, counts=None) -> None:
+        """Fix the element count of every tile: one class per tile orbit and orbit size
+        (:mod:`thinning.search.tile_counts`). ``counts`` (T,) given, or None: planned from the
+        unconstrained density envelope."""
+        from . import tile_counts as tc
+
+        grid = self.tile_grid
+        if not hasattr(self, "_untiled_classes"):
+            self._untiled_classes = (self.gene_class, self.class_sizes, self.class_ones)
+        self.gene_class, self.class_sizes, self.class_ones = self._untiled_classes
+        t_orbit = tc.tile_orbits(self, self._partners)
+        size_of_gene = self.orbit_size[self.gene_orbit]
+        group_of_gene = t_orbit[grid.tile_of_site[self.gene_sites()[:, 0]]]
+        units = tc._units(self, t_orbit, size_of_gene, group_of_gene)
+        rules = self.tiles
+        if counts is None and rules.elements_per_tile is not None and grid.full.all():
+            counts = np.full(grid.n_tiles, rules.elements_per_tile)  # identical boards
+            if counts.sum() != self.elements:
+                raise SpecError(
+                    f"{where(self.source, 'budget.elements')}{self.elements}: {grid.n_tiles} "
+                    f"tiles of exactly {rules.elements_per_tile} take {int(counts.sum())}"
+                )
+        if counts is None:
+            from .density import optimised_envelope
+            from .envelope import site_probabilities
+
+            grid_kept, self.tile_grid = self.tile_grid, None  # the unconstrained programme
+            try:
+                env = optimised_envelope(self, {})
+            finally:
+                self.tile_grid = grid_kept
+            counts = tc.plan_counts(self, site_probabilities(self, env.genes), t_orbit, units)
+            self.notes.append(
+                f"tile counts planned from the density envelope: {int(counts.min())} to "
+                f"{int(counts.max())} per tile"
+            )
+            self.__dict__.pop("_envelopes", None)  # the density method's programme has the
+            self.envelope = None  # tile classes as constraints: a programme of its own
+        counts = np.asarray(counts, np.int64)
+        self.tile_counts = counts
+        self.gene_class, self.class_sizes, self.class_ones = tc.tile_class_layout(
+            self, counts, t_orbit, size_of_gene, group_of_gene
+        )
+        self._swap_cache = None
 
     def _init_robust(self):
         from ..engine.excitation import ErrorModel

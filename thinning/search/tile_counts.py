@@ -1,0 +1,195 @@
+"""Tiles in the thinning problem: per-tile counts as classes, and the plan of those counts.
+
+Every search method keeps the count of each *class* of genes exactly (:mod:`.problem`): a
+random draw, the genetic operators, the swap moves, annealing and the density method's
+sampling all work class by class. With tiles the classes are cut by tile as well as by orbit
+size, so that the element count of every tile is fixed for the whole search and kept exactly
+by every method, with no repair step.
+
+Which counts? With ``elements_per_tile`` the full tiles' counts are given. Otherwise (a
+capacity ``max_elements_per_tile``, whole chips, and the partial tiles of every mode) the
+counts are *planned* before the search: the unconstrained problem's density envelope
+(:func:`thinning.search.density.optimised_envelope`, the linear programme that the density
+method starts from) is summed over each tile, scaled by a common factor λ and clipped to the
+tile's limits so that the counts add up to the budget (the clipped surplus goes to the tiles
+with room, in proportion to their share, so the taper across the panel is kept where the
+capacity allows), then rounded to whole units (a chip's channels with ``whole_chips``) by the
+largest remainders. Summing a smooth envelope over a tile and drawing exactly that many
+elements in it is stratified sampling: it keeps the envelope's taper and removes the tile-to-
+tile spread of the count.
+
+With a symmetry, the tile grid must map onto itself under it (tiles.origin_mm placed
+accordingly); tiles that are images of one another carry the same count (a *tile orbit*).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..errors import SpecError, where
+
+__all__ = ["tile_orbits", "plan_counts", "tile_class_layout"]
+
+
+def tile_orbits(problem, partners) -> np.ndarray:
+    """The tile orbit of every tile (T,) under the problem's symmetry ``partners`` (the image
+    of each site under each operation, −1 where none); refuses a tile grid that the symmetry
+    does not map onto itself."""
+    grid = problem.tile_grid
+    t_of = grid.tile_of_site
+    orbit = np.arange(grid.n_tiles)
+    for img in partners:
+        ok = img >= 0
+        src_t, dst_t = t_of[ok], t_of[img[ok]]
+        # a well-defined tile map: every site of a tile lands in one and the same tile
+        first = np.full(grid.n_tiles, -1)
+        first[src_t] = dst_t
+        if np.any(first[src_t] != dst_t):
+            raise SpecError(
+                f"{where(problem.source, 'tiles.origin_mm')}the tile grid is not symmetric "
+                f"under {problem.symmetry}: place the tile origin so that tile boundaries are "
+                "symmetric about the panel's centre"
+            )
+        for _ in range(4):
+            lo = np.minimum(orbit[src_t], orbit[dst_t])
+            np.minimum.at(orbit, src_t, lo)
+            np.minimum.at(orbit, dst_t, lo)
+            orbit = orbit[orbit]
+    _, ids = np.unique(orbit, return_inverse=True)
+    return ids.ravel()
+
+
+def _units(problem, t_orbit, size_of_gene, group_of_gene) -> np.ndarray:
+    """The granularity of each tile orbit's per-tile count: a whole chip's channels with
+    ``whole_chips``, times what the orbit sizes allow (a mirror pair inside one tile adds 2)."""
+    step = problem.tile_grid.rules.step
+    n_groups = int(t_orbit.max()) + 1
+    per = np.bincount(t_orbit, minlength=n_groups)
+    units = np.full(n_groups, step, np.int64)
+    for g in range(n_groups):
+        sizes = np.unique(size_of_gene[group_of_gene == g])
+        if sizes.size:
+            gcd = int(np.gcd.reduce((sizes // per[g]).astype(np.int64)))
+            units[g] = step * gcd // math.gcd(step, gcd)
+    return units
+
+
+def plan_counts(problem, site_p, t_orbit, units) -> np.ndarray:
+    """Per-tile counts (T,) from site on-probabilities ``site_p``: the envelope's tile sums
+    scaled and clipped to the limits, rounded to whole units, adding up to the budget
+    (module docstring)."""
+    grid = problem.tile_grid
+    src = problem.source
+    n_groups = int(t_orbit.max()) + 1
+    per = np.bincount(t_orbit, minlength=n_groups)
+    pinned = np.bincount(grid.tile_of_site[problem.pinned_sites], minlength=grid.n_tiles)
+    avail = np.bincount(grid.tile_of_site[problem.available_sites], minlength=grid.n_tiles)
+    tau = np.bincount(grid.tile_of_site, weights=site_p, minlength=grid.n_tiles)
+    # per tile orbit (per tile): target, bounds
+    tau_g = np.bincount(t_orbit, weights=tau, minlength=n_groups) / per
+    pin_g = np.bincount(t_orbit, weights=pinned, minlength=n_groups) / per
+    hi_g = np.minimum(
+        np.bincount(t_orbit, weights=grid.limit, minlength=n_groups) / per,
+        np.bincount(t_orbit, weights=avail, minlength=n_groups) / per,
+    )
+    lo_g = np.ceil(pin_g / units) * units
+    hi_g = np.floor(hi_g / units) * units
+    exact = grid.rules.elements_per_tile
+    full_g = np.bincount(t_orbit, weights=grid.full, minlength=n_groups) == per
+    if exact is not None:
+        lo_g = np.where(full_g, exact, lo_g)
+        hi_g = np.where(full_g, exact, hi_g)
+    bad = lo_g > hi_g
+    if bad.any():
+        t = int(np.flatnonzero(t_orbit == np.flatnonzero(bad)[0])[0])
+        raise SpecError(
+            f"{where(src, 'tiles')}tile {t + 1} (a = {grid.a[t]}, b = {grid.b[t]}) has "
+            f"{int(pinned[t])} pinned sites, more than its limit of {int(grid.limit[t])}"
+        )
+    n = problem.elements
+    lo_tot, hi_tot = float((per * lo_g).sum()), float((per * hi_g).sum())
+    if not lo_tot <= n <= hi_tot:
+        raise SpecError(
+            f"{where(src, 'budget.elements')}{n}: the tiles take between {int(lo_tot)} and "
+            f"{int(hi_tot)} elements under the [tiles] limits"
+        )
+
+    def filled(lam):
+        return np.clip(lam * tau_g, lo_g, hi_g)
+
+    lo_l, hi_l = 0.0, 1.0
+    while (per * filled(hi_l)).sum() < n and hi_l < 1e12:
+        hi_l *= 2
+    for _ in range(100):
+        mid = 0.5 * (lo_l + hi_l)
+        if (per * filled(mid)).sum() < n:
+            lo_l = mid
+        else:
+            hi_l = mid
+    real = filled(hi_l)
+    if not np.isfinite(real).all() or tau_g.sum() <= 0:
+        real = lo_g + (hi_g - lo_g) * (n - lo_tot) / max(hi_tot - lo_tot, 1e-12)
+    counts = np.clip(np.floor(real / units) * units, lo_g, hi_g)
+    left = int(round(n - (per * counts).sum()))
+    # hand out whole units by the largest remainders, while they fit
+    order = np.argsort(-(real - counts) / units, kind="stable")
+    for _ in range(2):
+        for g in order:
+            add = int(per[g] * units[g])
+            if 0 < add <= left and counts[g] + units[g] <= hi_g[g]:
+                counts[g] += units[g]
+                left -= add
+        if left == 0:
+            break
+    if left:
+        raise SpecError(
+            f"{where(src, 'budget.elements')}{n}: cannot be split into tiles of whole "
+            f"{int(units.max())}-element units within the limits; choose a budget that is a "
+            "multiple of the unit"
+        )
+    return counts[t_orbit].astype(np.int64)
+
+
+def tile_class_layout(problem, counts, t_orbit, size_of_gene, group_of_gene):
+    """(gene_class, class_sizes, class_ones) with one class per tile orbit and orbit size,
+    the counts of each tile orbit split over its orbit sizes
+    (:func:`thinning.search.problem._composition`)."""
+    from .problem import _composition
+
+    grid = problem.tile_grid
+    n_groups = int(t_orbit.max()) + 1
+    per = np.bincount(t_orbit, minlength=n_groups)
+    pinned = np.bincount(t_orbit[grid.tile_of_site[problem.pinned_sites]], minlength=n_groups)
+    first_tile = np.array([np.flatnonzero(t_orbit == g)[0] for g in range(n_groups)])
+    gene_class = np.zeros(size_of_gene.size, np.int64)
+    sizes_out, ones_out = [], []
+    for g in range(n_groups):
+        genes = np.flatnonzero(group_of_gene == g)
+        need = int(counts[first_tile[g]]) * int(per[g]) - int(pinned[g])
+        sizes = np.unique(size_of_gene[genes])
+        avail = np.array([(size_of_gene[genes] == s).sum() for s in sizes])
+        t = int(first_tile[g])
+        ones = (
+            _composition(
+                need,
+                sizes,
+                avail,
+                need,
+                problem.source,
+                problem.symmetry,
+            )
+            if sizes.size
+            else np.zeros(0, np.int64)
+        )
+        if not sizes.size and need:
+            raise SpecError(
+                f"{where(problem.source, 'tiles')}tile {t + 1} has no free sites for its "
+                f"{need} elements"
+            )
+        for s, o in zip(sizes, ones, strict=True):
+            gene_class[genes[size_of_gene[genes] == s]] = len(sizes_out)
+            sizes_out.append(int(s))
+            ones_out.append(int(o))
+    return gene_class, np.array(sizes_out, np.int64), np.array(ones_out, np.int64)
