@@ -438,3 +438,20 @@ def test_spec_table_reads_relative_to_the_spec_folder_with_its_layers(tmp_path):
     assert len(drawing.outline_mm) == 4 and len(drawing.holes_mm) == 1
     with pytest.raises(GeometryError, match=r"cad/p.dxf: layer OUTLINE: the outline layer is "):
         panel_from_spec_table({"dxf": "cad/p.dxf"}, tmp_path, "spec.toml")
+
+
+def test_zero_length_pieces_are_skipped_and_a_wide_tolerance_keeps_arcs(tmp_path):
+    """Common practice: a zero-length LINE (a CAD artefact) is skipped with a note, and the
+    joining tolerance closes gaps without merging the closely spaced vertices of an arc (a
+    10 mm circle has vertices 0.28 mm apart at a 1 µm sagitta: 2·√(2·r·s))."""
+    doc, msp = new_drawing()
+    msp.add_lwpolyline([(0, 0), (40, 0), (40, 40), (0, 40)], close=True,
+                       dxfattribs={"layer": "OUTLINE"})  # fmt: skip
+    msp.add_circle((20, 20), 10, dxfattribs={"layer": "HOLES"})
+    dot = msp.add_line((5, 5), (5, 5), dxfattribs={"layer": "HOLES"})
+    doc.saveas(tmp_path / "dot.dxf")
+    fine = read_panel_dxf(tmp_path / "dot.dxf")
+    wide = read_panel_dxf(tmp_path / "dot.dxf", tolerance_mm=0.5)
+    assert any(f"skipped LINE #{dot.dxf.handle}" in n for n in fine.notes)
+    assert wide.holes_mm == fine.holes_mm
+    assert 10 * (1 - math.cos(math.pi / len(wide.holes_mm[0]))) <= SAGITTA_MM

@@ -48,6 +48,10 @@ __all__ = [
 #: site test grows with the number of boundary vertices).
 SAGITTA_MM = 1e-3
 
+#: Consecutive points closer than this are one point  [mm] (a repeated vertex, a closing
+#: vertex drawn twice); far below any gap the joining tolerance closes.
+_SAME_MM = 1e-9
+
 #: $INSUNITS codes read, with their length in millimetres (AutoCAD's code table; 4 = mm).
 UNIT_TO_MM = {
     1: ("inches", 25.4),
@@ -258,7 +262,15 @@ def _join(pieces: list[_Piece], tol: float, src, layer, notes) -> list[tuple[str
     from scipy.spatial import cKDTree
 
     rings = [(p.label, p.points) for p in pieces if p.closed]
-    open_ = [p for p in pieces if not p.closed]
+    open_, dots = [], []
+    for p in pieces:
+        if not p.closed:
+            short = np.hypot(*(p.points - p.points[0]).T).max() <= tol
+            (dots if short else open_).append(p)
+    if dots:  # a zero-length line or arc: a drawing artefact, not part of the outline
+        notes.append(
+            f"{layer}: skipped {_names([p.label for p in dots])} (shorter than {tol:g} mm)"
+        )
     if not open_:
         return rings
     ends = np.concatenate([[p.points[0], p.points[-1]] for p in open_])
@@ -302,16 +314,14 @@ def _join(pieces: list[_Piece], tol: float, src, layer, notes) -> list[tuple[str
     return rings
 
 
-def _clean(label, ring: np.ndarray, tol: float, src, layer) -> np.ndarray:
-    """Drop repeated points (within ``tol``) and check the ring is a simple closed curve."""
+def _clean(label, ring: np.ndarray, src, layer) -> np.ndarray:
+    """Drop repeated points (closer than :data:`_SAME_MM`) and check the ring is a simple
+    closed curve."""
     from shapely.geometry import LinearRing
 
-    keep = [0]
-    for i in range(1, len(ring)):
-        if math.dist(ring[i], ring[keep[-1]]) > tol:
-            keep.append(i)
-    ring = ring[keep]
-    while len(ring) > 1 and math.dist(ring[0], ring[-1]) <= tol:
+    step = np.hypot(*np.diff(ring, axis=0).T)
+    ring = ring[np.concatenate([[True], step > _SAME_MM])]
+    while len(ring) > 1 and math.dist(ring[0], ring[-1]) <= _SAME_MM:
         ring = ring[:-1]
     if len(ring) < 3:
         raise GeometryError(f"{where(src, layer)}{label}: encloses no area")
@@ -338,7 +348,7 @@ def _layer_rings(doc, layer, scale, tol, src, notes):
         what = ", ".join(f"{n} {k}" for k, n in sorted(skipped.items()))
         notes.append(f"{field_}: skipped {what} (annotation, not panel geometry)")
     rings = _join(pieces, tol, src, field_, notes)
-    return [(label, _clean(label, ring, tol, src, field_)) for label, ring in rings]
+    return [(label, _clean(label, ring, src, field_)) for label, ring in rings]
 
 
 def _oriented(ring: np.ndarray, ccw: bool) -> list:
