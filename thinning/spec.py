@@ -217,6 +217,7 @@ class Spec:
     element: object = None
     hpbw_max: float | None = None
     tiles: object = None
+    panel_drawing: dict | None = None
 
     @property
     def wavelength(self) -> float:
@@ -543,7 +544,7 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         raw.get("scan", {}), raw.get("band"), ghz_to_hz(freq_ghz), scan_deg, src, _pair, _choice
     )
 
-    aperture, n_sites = None, None
+    aperture, n_sites, panel_drawing = None, None, None
     if kind == "linear":
         n_sites = _get(raw, "aperture", "sites", src, required=True)
         n_sites = _number(n_sites, src, "aperture.sites", lo=2, integer=True)
@@ -552,6 +553,11 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         if drawing is not None:
             outline, holes = drawing.outline_mm, drawing.holes_mm
             warnings.extend(drawing.notes)
+            dxf_path = _spec_dir(src) / raw["aperture"]["dxf"]
+            panel_drawing = {
+                "file": str(raw["aperture"]["dxf"]),
+                "sha256": hashlib.sha256(dxf_path.read_bytes()).hexdigest(),
+            }
         else:
             outline = _get(raw, "aperture", "outline_mm", src, required=True)
             holes = _get(raw, "aperture", "holes_mm", src, default=[])
@@ -795,6 +801,7 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         element=element,
         hpbw_max=hpbw_max,
         tiles=tiles,
+        panel_drawing=panel_drawing,
     )
 
 

@@ -65,6 +65,8 @@ def layout_metadata(
 ) -> dict:
     """The contents of layout.json: the score keys plus provenance."""
     meta = dict(metrics)
+    if spec.panel_drawing is not None:  # the drawing the outline was read from
+        meta["panel_drawing"] = dict(spec.panel_drawing)
     env = getattr(problem, "envelope", None)
     if env is not None:  # the density envelope the search started from, and its bound
         meta["envelope_bound_db"] = env.summary()["bound_db"]

@@ -342,6 +342,7 @@ def _done(folder: Path, spec: Spec, n: int) -> dict | None:
         return None
     same = (
         meta.get("spec_digest_sha256") == spec.digest
+        and meta.get("panel_drawing") == spec.panel_drawing
         and meta.get("method") == spec.method
         and meta.get("seed") == spec.seed
         and meta.get("elements") == n
