@@ -18,9 +18,11 @@ from pathlib import Path
 import numpy as np
 
 from .engine.coverage import coverage_from_spec
+from .engine.excitation import check_stress_table, robust_from_spec
 from .engine.mask import mask_from_spec
 from .errors import SpecError, where
-from .geometry.aperture import Aperture
+from .geometry.aperture import Aperture, check_holes_inside
+from .geometry.dxf_panel import panel_from_spec_table
 from .geometry.lattice import LATTICE_KINDS, Lattice, Sites, grating_lobe_positions
 from .geometry.tiles import TILE_KEYS, tiles_from_spec
 from .search import METHODS
@@ -370,24 +372,6 @@ class Spec:
         return pinned, forbidden
 
 
-def _spec_dir(source: str) -> Path:
-    """The folder a spec's relative paths (a drawing, an element table) are read from."""
-    return Path(source).parent
-
-
-def panel_from_spec_table(table: dict, spec_dir: Path, source: str):
-    """The outline and holes of ``[aperture] dxf`` (:mod:`thinning.geometry.dxf_panel`), or
-    None when the spec types them."""
-    if "dxf" not in table:
-        for key in ("dxf_outline_layer", "dxf_holes_layer"):
-            if key in table:
-                raise SpecError(f"{where(source, f'aperture.{key}')}needs aperture.dxf")
-        return None
-    from .geometry import dxf_panel
-
-    return dxf_panel.panel_from_spec_table(table, spec_dir, source)
-
-
 def load_spec(path) -> Spec:
     """Read and validate a spec file."""
     p = Path(path)
@@ -448,44 +432,6 @@ def _points(value, src, key):
     if not isinstance(value, list) or not all(isinstance(p, list) and len(p) == 2 for p in value):
         raise SpecError(f"{where(src, key)}expected a list of [x, y] pairs in mm")
     return [(_number(x, src, key), _number(y, src, key)) for x, y in value]
-
-
-_POINTS = ("Point", "MultiPoint")  # a hole may touch the outline at single points
-
-
-def _check_holes_inside(outline, holes, src) -> None:
-    """A hole must lie inside the outline: one that crosses it (a notch cut from the edge) or
-    lies outside it is named as such, with a point where it does (shapely's own reason for the
-    combined polygon, "self-intersection", does not say which ring is at fault)."""
-    import shapely
-    from shapely.geometry import LinearRing, Polygon
-
-    try:
-        shell = Polygon(np.asarray(outline, dtype=float))
-        rings = [np.asarray(h, dtype=float) for h in holes]
-    except (TypeError, ValueError):
-        return  # the aperture's own checks name the malformed value
-    if not shell.is_valid or any(r.ndim != 2 or r.shape[1:] != (2,) or len(r) < 3 for r in rings):
-        return
-    for i, ring in enumerate(rings):
-        hole = Polygon(ring)
-        if not hole.is_valid:
-            continue
-        key = f"aperture.holes_mm[{i}]"
-        meet = shell.boundary.intersection(LinearRing(ring))
-        if not meet.is_empty and (not shell.contains(hole) or meet.geom_type not in _POINTS):
-            at = shapely.get_coordinates(meet)[0]
-            word = "touches" if shell.contains(hole) else "crosses"
-            raise SpecError(
-                f"{where(src, key)}the hole {word} the outline at ({at[0]:g}, {at[1]:g}) mm; "
-                "a cut-out that reaches the edge is part of the outline (draw it into "
-                "aperture.outline_mm)"
-            )
-        if not shell.intersects(hole):
-            x, y = ring[0]
-            raise SpecError(
-                f"{where(src, key)}the hole lies outside the outline (its point ({x:g}, {y:g}) mm)"
-            )
 
 
 def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
@@ -549,11 +495,11 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
         n_sites = _get(raw, "aperture", "sites", src, required=True)
         n_sites = _number(n_sites, src, "aperture.sites", lo=2, integer=True)
     else:
-        drawing = panel_from_spec_table(raw.get("aperture", {}), _spec_dir(src), src)
+        drawing = panel_from_spec_table(raw.get("aperture", {}), Path(src).parent, src)
         if drawing is not None:
             outline, holes = drawing.outline_mm, drawing.holes_mm
             warnings.extend(drawing.notes)
-            dxf_path = _spec_dir(src) / raw["aperture"]["dxf"]
+            dxf_path = Path(src).parent / raw["aperture"]["dxf"]
             panel_drawing = {
                 "file": str(raw["aperture"]["dxf"]),
                 "sha256": hashlib.sha256(dxf_path.read_bytes()).hexdigest(),
@@ -562,7 +508,7 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
             outline = _get(raw, "aperture", "outline_mm", src, required=True)
             holes = _get(raw, "aperture", "holes_mm", src, default=[])
         clearance = _get(raw, "aperture", "edge_clearance_mm", src, default=0.0)
-        _check_holes_inside(outline, holes, src)
+        check_holes_inside(outline, holes, src)
         aperture = Aperture.from_mm(outline, holes, clearance, src)
 
     tiles = None
@@ -696,50 +642,8 @@ def parse_spec(raw: dict, source: str = "spec", digest: str = "") -> Spec:
             output["footprint_mm"], src, "output.footprint_mm", lo=0, lo_open=True
         )
 
-    st = raw.get("stress", {})
-    for k, v in st.items():
-        if k == "steering":
-            _choice(v, ("phase", "delay"), src, "stress.steering")
-        elif k == "band_ghz":
-            if not (isinstance(v, list) and len(v) == 2):
-                raise SpecError(f"{where(src, 'stress.band_ghz')}expected [low, high] in GHz")
-            lo, hi = (_number(x, src, "stress.band_ghz", lo=0, lo_open=True) for x in v)
-            if not lo < hi:
-                raise SpecError(f"{where(src, 'stress.band_ghz')}{v!r}: low must be below high")
-        else:
-            _number(
-                v,
-                src,
-                f"stress.{k}",
-                lo=0,
-                integer=k in ("phase_bits", "failures", "trials", "seed"),
-            )
-    robust, rob = None, raw.get("robust")
-    r_trials, r_pct, r_seed = 16, 90.0, 0
-    if rob is not None:
-        from .engine.excitation import ErrorModel
-
-        bits = rob.get("phase_bits")
-        robust = ErrorModel(
-            amplitude_db=_number(
-                rob.get("amplitude_error_db", 0.0), src, "robust.amplitude_error_db", lo=0, hi=10
-            ),
-            phase_deg=_number(
-                rob.get("phase_error_deg", 0.0), src, "robust.phase_error_deg", lo=0, hi=180
-            ),
-            phase_bits=None
-            if bits is None
-            else _number(bits, src, "robust.phase_bits", lo=1, hi=16, integer=True),
-            failures=_number(rob.get("failures", 0), src, "robust.failures", lo=0, integer=True),
-        )
-        r_trials = _number(rob.get("trials", 16), src, "robust.trials", lo=2, hi=1000, integer=True)
-        r_pct = _number(rob.get("percentile", 90.0), src, "robust.percentile", lo=0, hi=100)
-        r_seed = _number(rob.get("seed", 0), src, "robust.seed", lo=0, integer=True)
-        if not robust.any:
-            raise SpecError(
-                f"{where(src, 'robust')}states no error: give at least one of "
-                "amplitude_error_db, phase_error_deg, phase_bits, failures"
-            )
+    check_stress_table(raw.get("stress", {}), src, _number, _choice)
+    robust, r_trials, r_pct, r_seed = robust_from_spec(raw.get("robust"), src, _number)
 
     lam = wavelength(ghz_to_hz(freq_ghz))
     scan = deg_to_rad(scan_deg)

@@ -265,6 +265,8 @@ def tiled_figures(spec: Spec, problem, layout, search, meta, compare: bool):
             "runtime_s": round(float(run.runtime_s), 3),
         }
     meta["tiles"] = tile_summary(tiling, layout, spec.wavelength, free, meta["psl_db"])
+    if problem.tile_plan_bound_db is not None:  # theory beside the result
+        meta["tiles"]["envelope_bound_db"] = round(problem.tile_plan_bound_db, 3)
     meta["notes"] = list(meta.get("notes", [])) + meta["tiles"]["notes"]
     return tiling
 

@@ -24,6 +24,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..errors import SpecError, where
+
 __all__ = ["ErrorModel", "amplitude_error_variance", "quantisation_variance", "error_floor"]
 
 
@@ -70,3 +72,53 @@ def error_floor(n: int, weights, model: ErrorModel) -> float:
     d2 = amplitude_error_variance(model.amplitude_db)
     ph2 = math.radians(model.phase_deg) ** 2 + quantisation_variance(model.phase_bits)
     return ((1 - p) + d2 + p * ph2) / (p * eta * n)
+
+
+def check_stress_table(st: dict, src, number, choice) -> None:
+    """Check a spec's ``[stress]`` table (``number``/``choice``: the spec's value checkers)."""
+    for k, v in st.items():
+        if k == "steering":
+            choice(v, ("phase", "delay"), src, "stress.steering")
+        elif k == "band_ghz":
+            if not (isinstance(v, list) and len(v) == 2):
+                raise SpecError(f"{where(src, 'stress.band_ghz')}expected [low, high] in GHz")
+            lo, hi = (number(x, src, "stress.band_ghz", lo=0, lo_open=True) for x in v)
+            if not lo < hi:
+                raise SpecError(f"{where(src, 'stress.band_ghz')}{v!r}: low must be below high")
+        else:
+            number(
+                v,
+                src,
+                f"stress.{k}",
+                lo=0,
+                integer=k in ("phase_bits", "failures", "trials", "seed"),
+            )
+
+
+def robust_from_spec(rob, src, number):
+    """(model, trials, percentile, seed) of a spec's ``[robust]`` table (None: no table)."""
+    robust = None
+    r_trials, r_pct, r_seed = 16, 90.0, 0
+    if rob is not None:
+        bits = rob.get("phase_bits")
+        robust = ErrorModel(
+            amplitude_db=number(
+                rob.get("amplitude_error_db", 0.0), src, "robust.amplitude_error_db", lo=0, hi=10
+            ),
+            phase_deg=number(
+                rob.get("phase_error_deg", 0.0), src, "robust.phase_error_deg", lo=0, hi=180
+            ),
+            phase_bits=None
+            if bits is None
+            else number(bits, src, "robust.phase_bits", lo=1, hi=16, integer=True),
+            failures=number(rob.get("failures", 0), src, "robust.failures", lo=0, integer=True),
+        )
+        r_trials = number(rob.get("trials", 16), src, "robust.trials", lo=2, hi=1000, integer=True)
+        r_pct = number(rob.get("percentile", 90.0), src, "robust.percentile", lo=0, hi=100)
+        r_seed = number(rob.get("seed", 0), src, "robust.seed", lo=0, integer=True)
+        if not robust.any:
+            raise SpecError(
+                f"{where(src, 'robust')}states no error: give at least one of "
+                "amplitude_error_db, phase_error_deg, phase_bits, failures"
+            )
+    return robust, r_trials, r_pct, r_seed

@@ -17,9 +17,9 @@ import shapely
 from shapely import affinity
 from shapely.geometry import LinearRing, Polygon
 
-from ..errors import GeometryError, where
+from ..errors import GeometryError, SpecError, where
 
-__all__ = ["Aperture", "BOUNDARY_TOLERANCE"]
+__all__ = ["Aperture", "BOUNDARY_TOLERANCE", "check_holes_inside"]
 
 #: Distance within which a site centre counts as lying on an edge [m] (1 nm). Coordinates
 #: converted from millimetres carry rounding of about 1e-19 m; this absorbs it.
@@ -200,3 +200,38 @@ class Aperture:
     def holes_mm(self) -> list[np.ndarray]:
         """Interior rings as (n, 2) arrays  [mm] (closed)."""
         return [np.asarray(r.coords) * 1e3 for r in self.polygon.interiors]
+
+
+_POINTS = ("Point", "MultiPoint")  # a hole may touch the outline at single points
+
+
+def check_holes_inside(outline, holes, src) -> None:
+    """A hole must lie inside the outline: one that crosses it (a notch cut from the edge) or
+    lies outside it is named as such, with a point where it does (shapely's own reason for the
+    combined polygon, "self-intersection", does not say which ring is at fault)."""
+    try:
+        shell = Polygon(np.asarray(outline, dtype=float))
+        rings = [np.asarray(h, dtype=float) for h in holes]
+    except (TypeError, ValueError):
+        return  # the aperture's own checks name the malformed value
+    if not shell.is_valid or any(r.ndim != 2 or r.shape[1:] != (2,) or len(r) < 3 for r in rings):
+        return
+    for i, ring in enumerate(rings):
+        hole = Polygon(ring)
+        if not hole.is_valid:
+            continue
+        key = f"aperture.holes_mm[{i}]"
+        meet = shell.boundary.intersection(LinearRing(ring))
+        if not meet.is_empty and (not shell.contains(hole) or meet.geom_type not in _POINTS):
+            at = shapely.get_coordinates(meet)[0]
+            word = "touches" if shell.contains(hole) else "crosses"
+            raise SpecError(
+                f"{where(src, key)}the hole {word} the outline at ({at[0]:g}, {at[1]:g}) mm; "
+                "a cut-out that reaches the edge is part of the outline (draw it into "
+                "aperture.outline_mm)"
+            )
+        if not shell.intersects(hole):
+            x, y = ring[0]
+            raise SpecError(
+                f"{where(src, key)}the hole lies outside the outline (its point ({x:g}, {y:g}) mm)"
+            )

@@ -422,7 +422,7 @@ def run_method(
     mod = method_module(method)
     with Tracker(problem, max_evaluations, time_limit_s, workers, progress) as tracker:
         try:
-            stopped = mod.run(problem, tracker, rng, dict(options or {}))
+            stopped = _run_tiled(problem, tracker, rng, mod, dict(options or {}))
         except KeyboardInterrupt:
             if tracker.best_genome is None:
                 raise
@@ -430,6 +430,29 @@ def run_method(
             stopped = "interrupt"
         tracker.record(final=True)
         return tracker.result(stopped or tracker.stop_reason() or "done")
+
+
+def _run_tiled(problem, tracker, rng, mod, options):
+    """The method's run; when the tile counts are free (a capacity, whole chips), the method
+    gets :data:`~.tile_counts.METHOD_SHARE` of the limits and moving elements between tiles
+    (:func:`~.tile_counts.transfer_polish`) the rest."""
+    from . import tile_counts
+
+    if getattr(problem, "tile_grid", None) is None or not tile_counts.free_counts(problem):
+        return mod.run(problem, tracker, rng, options)
+    limits = tracker.time_limit_s, tracker.max_evaluations
+    share = tile_counts.METHOD_SHARE
+    if limits[0] is not None:
+        tracker.time_limit_s = share * limits[0]
+    if limits[1] is not None:
+        tracker.max_evaluations = int(share * limits[1])
+    try:
+        stopped = mod.run(problem, tracker, rng, options)
+    finally:
+        tracker.time_limit_s, tracker.max_evaluations = limits
+    if stopped == "interrupt":
+        return stopped
+    return tile_counts.transfer_polish(problem, tracker, rng) or stopped
 
 
 def cpu_count() -> int:

@@ -420,10 +420,16 @@ def _solve(rows_re, rhs, basis: _Basis, problem):
     a_eq[basis.class_of_var, np.arange(nv)] = basis.genes_in_var
     cost = np.zeros(nv + 1)
     cost[-1] = 1.0
+    b_ub = -rhs
+    caps = getattr(problem, "_plan_caps", None)
+    if caps is not None:  # per-tile limits on the expected count (the tile-count plan)
+        rows, room = _cap_rows(basis, *caps)
+        a_ub = np.vstack([a_ub, np.hstack([rows, np.zeros((rows.shape[0], 1))])])
+        b_ub = np.concatenate([b_ub, room])
     res = linprog(
         cost,
         A_ub=a_ub,
-        b_ub=-rhs,
+        b_ub=b_ub,
         A_eq=a_eq,
         b_eq=problem.class_ones.astype(float),
         bounds=[(0.0, 1.0)] * nv + [(0.0, None)],
@@ -432,6 +438,16 @@ def _solve(rows_re, rhs, basis: _Basis, problem):
     if res.status != 0:
         return None, math.inf
     return res.x[:nv], float(res.x[-1])
+
+
+def _cap_rows(basis: _Basis, tile_of_gene, room):
+    """Rows Σ_v a[t, v]·q_v ≤ room[t]: the expected count of every tile (a gene's weight on
+    each variable, summed over the tile's genes) within its room (limit less pins)."""
+    rows = np.zeros((room.size, basis.n_vars))
+    used = basis.gene_vars >= 0
+    t = np.broadcast_to(tile_of_gene[:, None], basis.gene_vars.shape)
+    np.add.at(rows, (t[used], basis.gene_vars[used]), basis.gene_weights[used])
+    return rows, room.astype(float)
 
 
 def _halfplanes(b, theta):

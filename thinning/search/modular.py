@@ -6,20 +6,22 @@ orientations (:mod:`thinning.geometry.tiles`). The search chooses the boards and
 assignment of board and orientation to every tile; partial tiles (cut by the outline, a hole
 or the clearance) are variants of their own, with free occupancy and a fixed count.
 
-Counts. The per-tile counts of the unconstrained density envelope are planned first
-(:func:`thinning.search.tile_counts.plan_counts`, within the tile limits); the full tiles are
-grouped by that count into T groups (contiguous in count: a 1-D k-means), and each board's
-count is the group's mean, rounded to whole units (chips with ``whole_chips``) and adjusted so
-that Σ boards' count × tiles using them + the partial tiles' counts = the budget exactly. Boards
-may therefore differ in count, which is how a modular panel keeps a taper.
+Counts. The per-tile counts of the density envelope under the tile limits are planned first
+(:func:`thinning.search.tile_counts.plan_counts`); the full tiles are grouped by that count
+into at most T groups (contiguous in count), and each board's count is the group's mean,
+rounded to whole units (chips with ``whole_chips``) and adjusted so that Σ boards' count ×
+tiles using them + the partial tiles' counts = the budget exactly; of the groupings, the one
+whose expected pattern has the lowest peak is kept (:func:`plan_boards`). Boards may therefore
+differ in count, which is how a modular panel keeps a taper.
 
 Search: simulated annealing (Kirkpatrick, Gelatt & Vecchi, Science 220, 1983) over moves that
 all keep every count: swap an on and an off position of one board (every tile using it
 changes); turn or mirror one tile; exchange the boards of two tiles; swap an on and an off
 site of one partial tile. Each step draws a batch of moves, evaluates them together (one FFT
 batch) and takes the best by the Metropolis rule at a temperature falling geometrically (in
-dB of objective) over the run's time or evaluations; on a stall the walk restarts from the
-best layout, shaken.
+dB of objective) over a cycle of steps; each cycle reheats from the best layout, shaken. Only
+the stop depends on the clock: a run is reproducible for a seed and evaluation budget, and a
+longer run continues a shorter one.
 """
 
 from __future__ import annotations
@@ -37,10 +39,13 @@ __all__ = ["ModularState", "plan_boards", "run"]
 
 #: Moves evaluated together per step.
 BATCH = 32
+#: Groupings of the tiles into boards whose expected pattern is compared (at most).
+MAX_GROUPINGS = 200
 #: Start and end temperature of the walk  [dB of objective].
 HOT_DB, COLD_DB = 0.3, 0.01
-#: Steps without a new best before the walk restarts from the best layout.
-STALL_STEPS = 300
+#: Steps of one cooling cycle (each a batch of moves); a cycle ends by reheating from the best
+#: layout, shaken by a few moves. A cycle without a new best ends a run without a time limit.
+CYCLE_STEPS, SHAKE_MOVES = 1500, 4
 
 
 def _check(problem):
@@ -60,86 +65,110 @@ def _check(problem):
 
 def _plan_tile_counts(problem) -> np.ndarray:
     """Per-tile target counts from the density envelope, within the limits."""
-    from .density import optimised_envelope
     from .envelope import site_probabilities
 
     grid = problem.tile_grid
     t_orbit = np.arange(grid.n_tiles)
     units = np.full(grid.n_tiles, grid.rules.step, np.int64)
-    env = optimised_envelope(problem, {})
-    problem.envelope = None
+    env = tc.planned_envelope(problem)
+    problem.tile_plan_bound_db = float(env.bound_db)
     p = site_probabilities(problem, env.genes)
     return tc.plan_counts(problem, p, t_orbit, units), p
 
 
-def plan_boards(problem, targets, n_boards) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(group of every full tile, count of every board, counts of the partial tiles): full
-    tiles grouped by target count into at most ``n_boards`` groups, counts rounded to units and
-    adjusted to the budget (module docstring)."""
-    grid = problem.tile_grid
-    rules = grid.rules
-    step = rules.step
-    full = np.flatnonzero(grid.full)
-    part = np.flatnonzero(~grid.full)
-    cap = int(grid.limit[full].min()) if full.size else 0
-    t_full = targets[full].astype(float)
-    k = max(1, min(n_boards, full.size, len(np.unique(t_full))))
-    # 1-D k-means on the sorted targets (contiguous groups)
+def _groupings(t_full: np.ndarray, k: int):
+    """Groupings of the full tiles into k groups contiguous in target count (tiles of equal
+    target kept together): every choice of k − 1 cuts among the sorted targets' steps, or,
+    when there are too many, the split into equal numbers."""
     order = np.argsort(t_full, kind="stable")
-    edges = np.linspace(0, full.size, k + 1).round().astype(int)
-    group = np.zeros(full.size, np.int64)
-    for _ in range(50):
-        for g in range(k):
-            group[order[edges[g] : edges[g + 1]]] = g
-        means = np.array([t_full[group == g].mean() for g in range(k)])
-        centre = np.sort(means)
-        cut = (centre[:-1] + centre[1:]) / 2
-        new = np.searchsorted(cut, t_full[order])
-        sizes = np.bincount(new, minlength=k)
-        if np.any(sizes == 0):
-            break
-        new_edges = np.concatenate([[0], np.cumsum(sizes)])
-        if np.array_equal(new_edges, edges):
-            break
-        edges = new_edges
-    for g in range(k):
-        group[order[edges[g] : edges[g + 1]]] = g
+    st = t_full[order]
+    steps = [i for i in range(1, st.size) if st[i] != st[i - 1]]
+    k = max(1, min(k, len(steps) + 1))
+    if math.comb(len(steps), k - 1) > MAX_GROUPINGS:
+        picks = [tuple(steps[int(round(q))] for q in np.linspace(0, len(steps) - 1, k + 1)[1:-1])]
+    else:
+        picks = itertools.combinations(steps, k - 1)
+    for cuts in picks:
+        group = np.zeros(t_full.size, np.int64)
+        for c in cuts:
+            group[order[c:]] += 1
+        yield group
+
+
+def _board_counts(problem, group, t_full, part_counts, cap, step):
+    """Board counts near the groups' mean targets, in whole units, adding up to the budget
+    with the partial tiles (which take up what the boards cannot, within their limits);
+    (board counts, partial counts) or None."""
+    grid = problem.tile_grid
+    part = np.flatnonzero(~grid.full)
+    k = int(group.max()) + 1
     mult = np.bincount(group, minlength=k)
     means = np.array([t_full[group == g].mean() for g in range(k)])
-    part_counts = targets[part].astype(np.int64)
     need = problem.elements - int(part_counts.sum())
-    best, best_err = None, math.inf
     base = np.round(means / step).astype(int)
+    best, best_err = None, math.inf
     span = range(-6, 7) if k <= 4 else range(-2, 3)
     for d in itertools.product(span, repeat=k) if k <= 5 else [tuple([0] * k)]:
         c = (base + np.array(d)) * step
-        if np.any(c < 0) or np.any(c > cap):
-            continue
-        if int((mult * c).sum()) != need:
+        if np.any(c < 0) or np.any(c > cap) or int((mult * c).sum()) != need:
             continue
         err = float(((c - means) ** 2 * mult).sum())
         if err < best_err:
             best, best_err = c, err
-    if best is None:  # let the partial tiles take up the difference, within their limits
-        c = np.clip(base * step, 0, cap)
-        diff = need - int((mult * c).sum())
-        room_up = grid.limit[part] - part_counts
-        room_dn = part_counts.copy()
-        for i in np.argsort(-room_up if diff > 0 else -room_dn):
-            if diff == 0:
-                break
-            move = min(abs(diff), int(room_up[i] if diff > 0 else room_dn[i]))
-            move -= move % step
-            part_counts[i] += move if diff > 0 else -move
-            diff -= move if diff > 0 else -move
-        if diff:
-            raise SpecError(
-                f"{where(problem.source, 'budget.elements')}{problem.elements}: cannot be "
-                f"made of {k} board(s) on {full.size} full tiles (tiles per board "
-                f"{mult.tolist()}) and the partial tiles; choose a budget that fits"
-            )
-        best = c
-    return group, best.astype(np.int64), part_counts
+    if best is not None:
+        return best.astype(np.int64), part_counts
+    c = np.clip(base * step, 0, cap)
+    diff = need - int((mult * c).sum())
+    parts = part_counts.copy()
+    room_up = grid.limit[part] - parts
+    for i in np.argsort(-room_up if diff > 0 else -parts):
+        if diff == 0:
+            break
+        move = min(abs(diff), int(room_up[i] if diff > 0 else parts[i]))
+        move -= move % step
+        parts[i] += move if diff > 0 else -move
+        diff -= move if diff > 0 else -move
+    return None if diff else (c.astype(np.int64), parts)
+
+
+def plan_boards(problem, targets, n_boards) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(group of every full tile, count of every board, counts of the partial tiles): the
+    full tiles grouped by planned count into at most ``n_boards`` groups (contiguous in
+    count), each group's board count its mean rounded to units and adjusted to the budget;
+    of the groupings tried (:func:`_groupings`), the one whose expected pattern (each tile
+    filled uniformly to its count) has the lowest peak sidelobe
+    (:func:`thinning.search.envelope.envelope_bound`)."""
+    from .envelope import envelope_bound
+
+    grid = problem.tile_grid
+    step = grid.rules.step
+    full = np.flatnonzero(grid.full)
+    part = np.flatnonzero(~grid.full)
+    cap = int(grid.limit[full].min()) if full.size else 0
+    t_full = targets[full].astype(float)
+    part_counts = targets[part].astype(np.int64)
+    usable = np.maximum(grid.usable_count, 1)
+    best = None
+    for group in _groupings(t_full, max(1, min(n_boards, full.size))):
+        got = _board_counts(problem, group, t_full, part_counts, cap, step)
+        if got is None:
+            continue
+        boards, parts = got
+        per_tile = targets.astype(float).copy()
+        per_tile[full] = boards[group]
+        per_tile[part] = parts
+        site_p = np.where(grid.usable, (per_tile / usable)[grid.tile_of_site], 0.0)
+        site_p = np.where(problem.pinned_sites, 1.0, site_p)
+        bound, _ = envelope_bound(problem, site_p)
+        if best is None or bound < best[0]:
+            best = (bound, group, boards, parts)
+    if best is None:
+        raise SpecError(
+            f"{where(problem.source, 'budget.elements')}{problem.elements}: cannot be made of "
+            f"at most {n_boards} board(s) on {full.size} full tiles and the partial tiles; "
+            "choose a budget that fits"
+        )
+    return best[1], best[2], best[3]
 
 
 class ModularState:
@@ -151,6 +180,8 @@ class ModularState:
         self.rng = rng
         self.table = grid.site_table()
         self.full = np.flatnonzero(grid.full)
+        self.table_flat = self.table[self.full].reshape(self.full.size, -1)
+        self.oriented = None  # the boards in every orientation, built on first use
         self.part = np.flatnonzero(~grid.full)
         self.transforms = grid.transforms
         ny, nx = grid.ny, grid.nx
@@ -183,13 +214,19 @@ class ModularState:
         other.__dict__.update(self.__dict__)
         other.assign, other.orient = self.assign.copy(), self.orient.copy()
         other.boards, other.part_mask = self.boards.copy(), self.part_mask.copy()
+        other.oriented = None if self.oriented is None else self.oriented.copy()
         return other
 
+    def _orient(self, b: int) -> np.ndarray:
+        """Board b in every allowed orientation, (orientations, ny·nx)."""
+        return np.stack([transform(self.boards[b], t).ravel() for t in self.transforms])
+
     def mask(self) -> np.ndarray:
+        if self.oriented is None:
+            self.oriented = np.stack([self._orient(b) for b in range(self.boards.shape[0])])
         m = self.part_mask | self.pinned
-        for i, t in enumerate(self.full):
-            occ = transform(self.boards[self.assign[i]], self.transforms[self.orient[i]])
-            m[self.table[t][occ]] = True
+        occ = self.oriented[self.assign, self.orient]  # (full tiles, ny·nx)
+        m[self.table_flat[occ]] = True
         return m
 
     def moves(self, k: int) -> list:
@@ -213,6 +250,8 @@ class ModularState:
                 if on.size and off.size:
                     flat[rng.choice(on)] = False
                     flat[rng.choice(off)] = True
+                    if s.oriented is not None:
+                        s.oriented[b] = s._orient(b)
             elif kind == "orient":
                 i = rng.integers(s.full.size)
                 s.orient[i] = (s.orient[i] + rng.integers(1, len(s.transforms))) % len(s.transforms)
@@ -244,41 +283,35 @@ def run(problem, tracker, rng: np.random.Generator, options: dict) -> str:
         f"({', '.join(map(str, np.bincount(groups).tolist()))} tiles each)"
     )
     batch = int(options.get("batch", BATCH))
+    cycle = int(options.get("anneal_cycle", CYCLE_STEPS))
+    hot = float(options.get("anneal_hot_db", HOT_DB))
+    cold = float(options.get("anneal_cold_db", COLD_DB))
     state = ModularState(problem, rng, site_p, groups, board_counts, part_counts)
+    first = problem.gene_sites()[:, 0]  # without symmetry a gene is one site
+    direct = bool((problem.orbit_size[problem.gene_orbit] == 1).all())
     cur = float(tracker.evaluate(problem.genome_of_mask(state.mask())[None]).objective[0])
     best_state, best = state, cur
-    since = 0
-    hot, cold = (
-        float(options.get("anneal_hot_db", HOT_DB)),
-        float(options.get("anneal_cold_db", COLD_DB)),
-    )
+    step, improved = 0, False
     while not tracker.should_stop():
-        frac = _progress(tracker)
-        temp = hot * (cold / hot) ** frac
+        temp = hot * (cold / hot) ** (step / cycle)
         cands = state.moves(batch)
-        genomes = np.array([problem.genome_of_mask(s.mask()) for s in cands])
+        masks = np.array([s.mask() for s in cands])
+        genomes = (
+            masks[:, first] if direct else np.array([problem.genome_of_mask(m) for m in masks])
+        )
         obj = tracker.evaluate(genomes).objective
         j = int(np.argmin(obj))
-        if obj[j] < cur or rng.random() < math.exp(-(obj[j] - cur) / max(temp, 1e-9)):
+        if obj[j] < cur or rng.random() < math.exp(-(obj[j] - cur) / temp):
             state, cur = cands[j], float(obj[j])
         if cur < best - 1e-9:
-            best_state, best, since = state, cur, 0
-        else:
-            since += 1
-        if since >= STALL_STEPS:
-            if tracker.stall_ends_run:
+            best_state, best, improved = state, cur, True
+        step += 1
+        if step >= cycle:  # the end of a cycle: reheat from the best layout, shaken
+            if not improved and tracker.stall_ends_run:
                 return "stall"
-            state, cur, since = best_state, best, 0  # restart from the best, shaken
-            for _ in range(3):
+            step, improved = 0, False
+            state = best_state
+            for _ in range(SHAKE_MOVES):
                 state = state.moves(1)[0]
             cur = float(tracker.evaluate(problem.genome_of_mask(state.mask())[None]).objective[0])
     return tracker.stop_reason()
-
-
-def _progress(tracker) -> float:
-    """The run's progress in [0, 1]: by time with a time limit, else by evaluations."""
-    if tracker.time_limit_s:
-        return min(1.0, tracker.elapsed / tracker.time_limit_s)
-    if tracker.max_evaluations:
-        return min(1.0, tracker.evaluations / tracker.max_evaluations)
-    return 0.5

@@ -239,6 +239,7 @@ class ThinningProblem:
         self.site_gene = gene_of_orbit[orbit_id]
         self.engine = self._make_engine()
         self.tile_grid = None
+        self.tile_plan_bound_db = None  # the bound of the envelope the tile counts came from
         if self.tiles is not None:
             from ..geometry.tiles import TileGrid
 
@@ -272,21 +273,16 @@ class ThinningProblem:
                     f"tiles of exactly {rules.elements_per_tile} take {int(counts.sum())}"
                 )
         if counts is None:
-            from .density import optimised_envelope
             from .envelope import site_probabilities
 
-            grid_kept, self.tile_grid = self.tile_grid, None  # the unconstrained programme
-            try:
-                env = optimised_envelope(self, {})
-            finally:
-                self.tile_grid = grid_kept
+            env = tc.planned_envelope(self)
             counts = tc.plan_counts(self, site_probabilities(self, env.genes), t_orbit, units)
+            self.tile_plan_bound_db = float(env.bound_db)
             self.notes.append(
-                f"tile counts planned from the density envelope: {int(counts.min())} to "
-                f"{int(counts.max())} per tile"
+                f"tile counts planned from the density envelope under the tile limits "
+                f"(bound {env.bound_db:.2f} dB): {int(counts.min())} to {int(counts.max())} "
+                "per tile"
             )
-            self.__dict__.pop("_envelopes", None)  # the density method's programme has the
-            self.envelope = None  # tile classes as constraints: a programme of its own
         counts = np.asarray(counts, np.int64)
         self.tile_counts = counts
         self.gene_class, self.class_sizes, self.class_ones = tc.tile_class_layout(

@@ -1,0 +1,236 @@
+#!/usr/bin/env python3
+"""What tiles and chips cost: the same panel thinned free and under each tile rule.
+
+The panel: 32 × 32 sites at half a wavelength (15 mm at 10 GHz), 8 × 8-site tiles (16 full
+tiles), 512 elements (50 %), a 15° scan cone, the sidelobe region outside the first null. Every
+case runs its spec's method (``genetic``, the default at 1,024 sites; ``modular`` for the
+pattern cases) for the same time limit, seed 1 unless ``--seeds`` says more; PSL and ASL are
+the full scoring's (:func:`thinning.analysis.score.score_layout`), not the search's own.
+
+Cases (the rows): unconstrained; capacity 48 per tile; whole chips of 4 (capacity 48);
+exactly 32 per tile; 4, 2 and 1 boards with all orientations (counts free within 48); 1 board
+with no orientation (the repeated tile and its lobe at u = λ/(tile width) = 0.25); and the
+best of random draws (unconstrained) at the evaluations of the 1-board run. For each: PSL, the
+penalty against unconstrained, ASL, the count range over the tiles, the distinct full-tile
+boards, the evaluations, and the issue's aim with met/not met.
+
+Usage::
+
+    python benchmarks/bench_tiles.py [--time S] [--seeds N] [--cases LIST] [--json FILE]
+                                     [--raw FILE] [--merge FILE,FILE]
+
+``--time`` (default 60) is each case's limit. ``--raw`` writes this run's rows for a later
+``--merge`` (two processes, one per core, each with a part of ``--cases``).
+"""
+
+from __future__ import annotations
+
+import os
+
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+import argparse
+import json
+import platform
+import statistics
+import time
+from pathlib import Path
+
+import numpy as np
+
+from thinning.analysis.design import score_spec_layout
+from thinning.analysis.tile_figures import tile_period_lobe
+from thinning.search import run_method
+from thinning.spec import parse_spec
+
+BASE = {
+    "name": "tile benchmark panel",
+    "array": {
+        "frequency_ghz": 10.0,
+        "lattice": "rectangular",
+        "spacing_mm": 15.0,
+        "origin_mm": [7.5, 7.5],
+    },
+    "aperture": {"outline_mm": [[-240, -240], [240, -240], [240, 240], [-240, 240]]},
+    "budget": {"elements": 512},
+    "scan": {"max_deg": 15},
+}
+T8 = {"size": [8, 8]}
+CASES = {
+    "unconstrained": None,
+    "capacity-48": {**T8, "max_elements_per_tile": 48},
+    "chips-4": {**T8, "max_elements_per_tile": 48, "channels_per_chip": 4, "whole_chips": True},
+    "exact-32": {**T8, "elements_per_tile": 32},
+    "boards-4": {**T8, "max_elements_per_tile": 48, "patterns": 4, "orientations": "all"},
+    "boards-2": {**T8, "max_elements_per_tile": 48, "patterns": 2, "orientations": "all"},
+    "boards-1": {**T8, "max_elements_per_tile": 48, "patterns": 1, "orientations": "all"},
+    "boards-1-fixed": {**T8, "max_elements_per_tile": 48, "patterns": 1, "orientations": "none"},
+}
+#: The issue's aims: (kind, value): "penalty" ≤ value dB against unconstrained, "psl" ≤ value
+#: dB, "random": below the best of random at equal evaluations.
+AIMS = {
+    "capacity-48": ("penalty", 0.5),
+    "chips-4": ("penalty", 0.5),
+    "exact-32": ("psl", -17.5),
+    "boards-2": ("penalty", 3.0),
+    "boards-1": ("random", None),
+}
+
+
+def spec_of(case: str, seed: int, limit: float):
+    raw = json.loads(json.dumps(BASE))
+    raw["search"] = {"seed": seed, "time_limit_s": limit}
+    if CASES[case] is not None:
+        raw["tiles"] = dict(CASES[case])
+    return parse_spec(raw, f"bench-{case}.toml")
+
+
+def run_case(case: str, seed: int, limit: float, evaluations=None) -> dict:
+    if case == "random":
+        spec = spec_of("unconstrained", seed, limit)
+        problem = spec.problem()
+        t = time.perf_counter()
+        res = run_method(
+            problem,
+            "random",
+            seed,
+            {"draws": 10**9},
+            max_evaluations=evaluations,
+            time_limit_s=None,
+        )
+    else:
+        spec = spec_of(case, seed, limit)
+        t = time.perf_counter()
+        problem = spec.problem()
+        res = run_method(problem, spec.method, seed, spec.options, time_limit_s=limit)
+    runtime = time.perf_counter() - t
+    _, m = score_spec_layout(spec, problem.sites, res.mask)
+    row = {
+        "case": case,
+        "seed": seed,
+        "method": "random" if case == "random" else spec.method,
+        "psl_db": round(m["psl_db"], 3),
+        "asl_db": round(m["asl_db"], 3),
+        "evaluations": int(res.evaluations),
+        "runtime_s": round(runtime, 1),
+    }
+    grid = problem.tile_grid
+    if grid is None:  # the counts a free layout puts on the 8 × 8 tiles, for comparison
+        from thinning.geometry.tiles import TileGrid, TileRules
+
+        grid = TileGrid(problem.sites, TileRules((8, 8)))
+    table = grid.describe(res.mask)
+    row["count_min"], row["count_max"] = int(table.count.min()), int(table.count.max())
+    row["boards"] = int(table.full_boards)
+    if case == "boards-1-fixed":
+        lobe = tile_period_lobe(
+            problem.sites.x[res.mask], problem.sites.y[res.mask], grid.period(), spec.wavelength
+        )
+        row["tile_lobe_db"] = lobe["level_db"]
+        row["tile_lobe_uv"] = [lobe["u"], lobe["v"]]
+    return row
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--time", type=float, default=60.0)
+    ap.add_argument("--seeds", type=int, default=1)
+    ap.add_argument("--cases", default=",".join([*CASES, "random"]))
+    ap.add_argument("--json", default=None)
+    ap.add_argument("--raw", default=None)
+    ap.add_argument("--merge", default=None)
+    args = ap.parse_args()
+    rows = []
+    if args.merge:
+        for f in args.merge.split(","):
+            rows += json.loads(Path(f).read_text())["rows"]
+    else:
+        cases = [c for c in args.cases.split(",") if c]
+        # compile the kernels before the first timed run
+        run_case("unconstrained", 99, 2.0)
+        for seed in range(1, args.seeds + 1):
+            for case in cases:
+                if case == "random":
+                    continue
+                rows.append(run_case(case, seed, args.time))
+                print(json.dumps(rows[-1]), flush=True)
+            if "random" in cases:
+                ref = [r for r in rows if r["case"] == "boards-1" and r["seed"] == seed]
+                evals = ref[0]["evaluations"] if ref else 5000
+                rows.append(run_case("random", seed, args.time, evaluations=evals))
+                print(json.dumps(rows[-1]), flush=True)
+    if args.raw:
+        Path(args.raw).write_text(json.dumps({"rows": rows}, indent=1))
+    summary = report(rows, args.time)
+    if args.json:
+        p = Path(args.json)
+        data = json.loads(p.read_text()) if p.exists() else {}
+        data["tiles"] = summary
+        p.write_text(json.dumps(data, indent=1) + "\n")
+
+
+def report(rows, limit) -> dict:
+    def med(case, key):
+        vals = [r[key] for r in rows if r["case"] == case]
+        return statistics.median(vals) if vals else None
+
+    free = med("unconstrained", "psl_db")
+    rand = med("random", "psl_db")
+    print(
+        f"\ntile benchmark: 32 x 32 sites, 8 x 8 tiles, 512 elements, 15 deg cone, "
+        f"{limit:g} s per case (median over seeds), {platform.processor() or platform.machine()}"
+    )
+    print(
+        f"{'case':<16}{'method':<9}{'PSL dB':>8}{'penalty':>9}{'ASL dB':>8}{'counts':>9}"
+        f"{'boards':>7}{'evals':>8}  aim"
+    )
+    out = {"time_limit_s": limit, "cases": {}}
+    for case in [*CASES, "random"]:
+        psl = med(case, "psl_db")
+        if psl is None:
+            continue
+        pen = None if free is None else psl - free
+        aim = AIMS.get(case)
+        verdict = ""
+        if aim is not None:
+            kind, v = aim
+            if kind == "penalty" and pen is not None:
+                verdict = f"penalty <= {v} dB: {'met' if pen <= v else 'NOT met'}"
+            elif kind == "psl":
+                verdict = f"PSL <= {v} dB: {'met' if psl <= v else 'NOT met'}"
+            elif kind == "random" and rand is not None:
+                verdict = (
+                    f"below random at equal evaluations ({rand:.2f} dB): "
+                    f"{'met' if psl < rand else 'NOT met'}"
+                )
+        r0 = [r for r in rows if r["case"] == case][0]
+        counts = f"{r0['count_min']}-{r0['count_max']}"
+        print(
+            f"{case:<16}{r0['method']:<9}{psl:>8.2f}"
+            f"{'' if pen is None else f'{pen:+.2f}':>9}{med(case, 'asl_db'):>8.2f}"
+            f"{counts:>9}{r0['boards']:>7}{int(med(case, 'evaluations')):>8}  {verdict}"
+        )
+        if "tile_lobe_db" in r0:
+            print(
+                f"{'':<16}lobe of the repeated tile: {r0['tile_lobe_db']:.2f} dB at (u, v) = "
+                f"({r0['tile_lobe_uv'][0]:.3f}, {r0['tile_lobe_uv'][1]:.3f}); the tile period "
+                "predicts u or v = 0.25"
+            )
+        out["cases"][case] = {
+            "psl_db": psl,
+            "penalty_db": None if pen is None else round(pen, 3),
+            "asl_db": med(case, "asl_db"),
+            "counts": counts,
+            "boards": r0["boards"],
+            "evaluations": int(med(case, "evaluations")),
+            "aim": verdict,
+        }
+    out["seeds"] = sorted({r["seed"] for r in rows})
+    out["rows"] = rows
+    return out
+
+
+if __name__ == "__main__":
+    np.seterr(all="ignore")
+    main()
