@@ -287,3 +287,19 @@ def test_tiles_html_negative_penalty_is_explained():
     t = _tiles_metrics()
     t["unconstrained"]["penalty_db"] = -0.3
     assert "bounds the cost" in tiles_html(t, {"psl_db": -24.6})
+
+
+def test_report_for_layout_draws_the_count_map(tmp_path, panel):
+    """The route write_deliverables takes: report_for_layout with the tiling puts the count
+    map (one rectangle per tile) into the tiles section."""
+    from thinning.analysis.score import score_layout
+    from thinning.outputs.report import report_for_layout
+
+    aperture, sites, layout, tiling = panel
+    metrics = score_layout(layout, 10e9, 0.0, 1.0).to_dict()
+    metrics["tiles"] = _tiles_metrics(unconstrained=False, repeat=False)
+    path = report_for_layout(
+        tmp_path / "r.html", layout, 10e9, aperture=aperture, metrics=metrics, tiling=tiling
+    )
+    sec = _section(path.read_text())
+    assert sec.count("<rect ") == tiling.grid.n_tiles
