@@ -11,26 +11,18 @@ matplotlib (Agg), imported only by :func:`fig_tile_map`.
 
 from __future__ import annotations
 
-import html
 import os
 from pathlib import Path
 
 import numpy as np
+
+from .svg_drawing import _e, _f, _path
 
 __all__ = ["tile_map_svg", "fig_tile_map", "write_tile_map_png", "tile_shade"]
 
 #: The shade of an empty tile and of a tile at the top of the scale (RGB, 0..1).
 _LIGHT = np.array([0.969, 0.984, 1.0])
 _DARK = np.array([0.031, 0.188, 0.420])
-
-
-def _e(text) -> str:
-    return html.escape(str(text), quote=True)
-
-
-def _f(v: float) -> str:
-    s = f"{float(v):.3f}".rstrip("0").rstrip(".")
-    return "0" if s in ("-0", "") else s
 
 
 def _top(tiling) -> int:
@@ -68,8 +60,6 @@ def tile_map_svg(tiling, aperture=None, title: str = "elements per tile") -> str
     -------
     str
     """
-    from .svg_drawing import _path
-
     grid, table = tiling.grid, tiling.table
     boxes = _boxes_mm(grid)
     lo, hi = boxes.reshape(-1, 2).min(axis=0), boxes.reshape(-1, 2).max(axis=0)
