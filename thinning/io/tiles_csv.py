@@ -114,7 +114,7 @@ def write_tiles_csv(path: str | os.PathLike, tiling) -> None:
                 int(grid.limit[t]),
                 int(bool(grid.full[t])),
             ]
-            if chips is not None:
-                rec.append(int(chips.per_tile[t]))
+            if chips is not None:  # per_tile may stop at the last tile with elements
+                rec.append(int(chips.per_tile[t]) if t < len(chips.per_tile) else 0)
             rec += [_fmt_mm(centres[t, 0]), _fmt_mm(centres[t, 1])]
             w.writerow(rec)
