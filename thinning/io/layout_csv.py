@@ -14,6 +14,10 @@ Format (UTF-8, a byte-order mark is accepted; comma-separated; a header row; no 
     filled or every cell is empty.
 ``amplitude``
     Linear amplitude weight ≥ 0 (optional; default 1). Not all zero.
+``tile``, ``chip``, ``channel``
+    A tiled design's tile id, chip id and channel within the chip, integers from 1
+    (optional; written by ``thinning design`` with ``[tiles]``, see
+    :mod:`thinning.io.tiles_csv`). Ignored on reading, like any other column.
 
 At least two elements (:data:`MIN_ELEMENTS`). Header names are case-sensitive; surrounding
 spaces are ignored. Other columns are ignored

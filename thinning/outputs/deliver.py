@@ -46,8 +46,11 @@ def write_drawings(
     footprint_mm=None,
     formats=("dxf", "svg", "png"),
     stem="layout",
+    tiling=None,
 ) -> list[Path]:
-    """layout.dxf / layout.svg / layout.png (whichever ``formats`` asks for)."""
+    """layout.dxf / layout.svg / layout.png (whichever ``formats`` asks for); with a
+    ``tiling`` (:class:`thinning.geometry.tiles.Tiling`) the DXF gains its TILES and CHIPS
+    layers and tiles.png (the per-tile count map) is written."""
     from .drawing import layout_title, write_layout_drawings
     from .dxf import write_layout_dxf
 
@@ -62,6 +65,7 @@ def write_drawings(
                 aperture,
                 footprint_mm=footprint_mm,
                 title=f"{title}, {today.isoformat()}",
+                tiling=tiling,
             )
         )
     figs = [f for f in formats if f in ("svg", "png")]
@@ -76,6 +80,10 @@ def write_drawings(
             sites=sites,
             formats=figs,
         )
+    if tiling is not None and "png" in formats:
+        from .tile_map import write_tile_map_png
+
+        files.append(write_tile_map_png(out / "tiles.png", tiling, aperture))
     return files
 
 
@@ -139,6 +147,7 @@ def write_report(
     spec=None,
     requirements=None,
     footprint_mm=None,
+    tiling=None,
 ) -> Path:
     from .report import report_for_layout
 
@@ -161,18 +170,22 @@ def write_report(
         spec=spec,
         requirements=requirements,
         footprint_mm=footprint_mm,
+        tiling=tiling,
     )
 
 
 def write_deliverables(result, out: Path) -> list[Path]:
     """Drawings, the best-of-random baseline and report.html for a finished design, into
     ``out`` (the staging folder of the run's file set); returns the paths written. The
-    baseline's figures go into ``result.metrics`` (layout.json is written after this)."""
+    baseline's figures go into ``result.metrics`` (layout.json is written after this). A
+    tiled design (``result.tiling``, a :class:`thinning.geometry.tiles.Tiling`) also gets
+    tiles.png, the TILES and CHIPS layers of the DXF and the report's tiles section."""
     from ..search import run_method
 
     spec = result.spec
     fp = spec.output.get("footprint_mm")
     name = str(spec.raw.get("name", Path(spec.source).stem))
+    tiling = getattr(result, "tiling", None)
     files = write_drawings(
         out,
         result.layout,
@@ -182,6 +195,7 @@ def write_deliverables(result, out: Path) -> list[Path]:
         name=name,
         sites=result.sites,
         footprint_mm=fp,
+        tiling=tiling,
     )
     baseline = None
     s = result.search
@@ -253,6 +267,7 @@ def write_deliverables(result, out: Path) -> list[Path]:
             spec=spec,
             requirements=m.get("requirements"),
             footprint_mm=fp,
+            tiling=tiling,
         )
     )
     return files

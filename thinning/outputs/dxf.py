@@ -14,6 +14,11 @@ CLEARANCE  3     The boundary the element centres keep clear of (outline and hol
 ELEMENTS   5     Per element a CIRCLE of the footprint diameter and a POINT at its centre.
 LABELS     8     Per element its id as TEXT, beside the circle.
 TITLE      6     The title, above the drawing.
+TILES      4     With a tiling: per tile its boundary rectangle (a closed LWPOLYLINE) and its
+                 id as TEXT at its centre.
+CHIPS      30    With chips: per chip a POINT and a small CIRCLE (a quarter of the element
+                 footprint across) at its centre, and a LINE from the centre to each of its
+                 elements.
 ========== ===== ============================================================================
 
 Colours are AutoCAD Colour Index numbers. Coordinates are the layout's metres times 1000,
@@ -35,9 +40,15 @@ from pathlib import Path
 import numpy as np
 
 from ..io.atomic import atomic_write
-from .dxf_bulk import BULK_ELEMENTS, element_entities, insert_entities, reserve_handles
+from .dxf_bulk import (
+    BULK_ELEMENTS,
+    chip_entities,
+    element_entities,
+    insert_entities,
+    reserve_handles,
+)
 
-__all__ = ["write_layout_dxf", "DXF_LAYERS", "DXF_VERSION"]
+__all__ = ["write_layout_dxf", "DXF_LAYERS", "TILE_LAYERS", "DXF_VERSION"]
 
 #: DXF version written (AutoCAD R2010).
 DXF_VERSION = "R2010"
@@ -51,6 +62,9 @@ DXF_LAYERS = {
     "LABELS": 8,
     "TITLE": 6,
 }
+
+#: The layers of a tiled layout (added only when there is a tiling).
+TILE_LAYERS = {"TILES": 4, "CHIPS": 30}
 
 #: ``$INSUNITS`` value for millimetres, and ``$MEASUREMENT`` value for metric.
 _INSUNITS_MM = 4
@@ -92,6 +106,7 @@ def write_layout_dxf(
     footprint_mm: float | None = None,
     title: str = "",
     labels: bool = True,
+    tiling=None,
 ) -> Path:
     """Write a layout as a DXF R2010 drawing in millimetres.
 
@@ -115,6 +130,9 @@ def write_layout_dxf(
     labels : bool
         Write each element's id on the LABELS layer, height footprint/3, to the upper right of
         its circle.
+    tiling : thinning.geometry.tiles.Tiling, optional
+        The layout's tiles (and chips): the TILES and CHIPS layers. Its elements are the
+        layout's, in the same order.
 
     Returns
     -------
@@ -142,7 +160,8 @@ def write_layout_dxf(
     doc.header["$MEASUREMENT"] = _MEASUREMENT_METRIC
     dash = max(d / 2.0, 0.5)
     doc.linetypes.add(_DASHED, pattern=[1.5 * dash, dash, -0.5 * dash], description="__ __ __")
-    for name, colour in DXF_LAYERS.items():
+    layers = DXF_LAYERS if tiling is None else {**DXF_LAYERS, **TILE_LAYERS}
+    for name, colour in layers.items():
         attribs = {"linetype": _DASHED} if name == "CLEARANCE" else {}
         doc.layers.add(name, color=colour, **attribs)
     msp = doc.modelspace()
@@ -158,7 +177,12 @@ def write_layout_dxf(
         xmin, ymin, xmax, ymax = (b * 1e3 for b in aperture.bounds)
         lo, hi = np.minimum(lo, [xmin, ymin]), np.maximum(hi, [xmax, ymax])
 
+    if tiling is not None:
+        lo, hi = _tiles(msp, tiling, lo, hi)
+    chips = None if tiling is None else tiling.chips
     bulk = len(xy) > BULK_ELEMENTS  # the element entities written as text (dxf_bulk)
+    if chips is not None and not bulk:
+        _chips(msp, chips, xy, d / 8.0)
     for x, y in xy if not bulk else ():
         centre = (float(x), float(y))
         msp.add_circle(centre, r, dxfattribs={"layer": "ELEMENTS"})
@@ -214,6 +238,11 @@ def write_layout_dxf(
         entities = element_entities(
             xy, r, ids, msp.block_record_handle, first, r * np.sqrt(0.5), d / 3.0
         )
+        if chips is not None:
+            first = reserve_handles(doc, 2 * chips.n_chips + len(xy))
+            entities += chip_entities(
+                chips.centre * 1e3, d / 8.0, xy, chips.chip, msp.block_record_handle, first
+            )
     stream = io.StringIO()
     doc.write(stream)
     text = stream.getvalue()
@@ -221,3 +250,34 @@ def write_layout_dxf(
         text = insert_entities(text, entities)
     atomic_write(path, doc.encode(text))
     return path
+
+
+def _tiles(msp, tiling, lo, hi):
+    """The TILES layer: each tile's rectangle and its id at the centre; the extents grown to
+    hold the rectangles."""
+    from ezdxf.enums import TextEntityAlignment
+
+    grid = tiling.grid
+    for t in range(grid.n_tiles):
+        box = grid.corners(t) * 1e3
+        _closed_ring(msp, box, "TILES")
+        w, h = np.ptp(box, axis=0)
+        msp.add_text(
+            str(t + 1), height=float(0.12 * min(w, h)), dxfattribs={"layer": "TILES"}
+        ).set_placement(
+            tuple(float(v) for v in box.mean(axis=0)), align=TextEntityAlignment.MIDDLE_CENTER
+        )
+        lo, hi = np.minimum(lo, box.min(axis=0)), np.maximum(hi, box.max(axis=0))
+    return lo, hi
+
+
+def _chips(msp, chips, xy, radius):
+    """The CHIPS layer: a POINT and a CIRCLE at each chip centre, a LINE to each element."""
+    centres = chips.centre * 1e3
+    for x, y in centres:
+        c = (float(x), float(y))
+        msp.add_circle(c, radius, dxfattribs={"layer": "CHIPS"})
+        msp.add_point(c, dxfattribs={"layer": "CHIPS"})
+    for (x, y), k in zip(xy, chips.chip, strict=True):
+        cx, cy = centres[int(k) - 1]
+        msp.add_line((float(cx), float(cy)), (float(x), float(y)), dxfattribs={"layer": "CHIPS"})

@@ -18,7 +18,13 @@ import re
 
 import numpy as np
 
-__all__ = ["BULK_ELEMENTS", "reserve_handles", "element_entities", "insert_entities"]
+__all__ = [
+    "BULK_ELEMENTS",
+    "reserve_handles",
+    "element_entities",
+    "chip_entities",
+    "insert_entities",
+]
 
 #: Above this many elements the element entities are written as text.
 BULK_ELEMENTS = 5000
@@ -76,6 +82,48 @@ def element_entities(xy_mm, radius, ids, owner, first_handle, label_offset, labe
                 f"  1\n{text}\n100\nAcDbText\n"
             )
             h += per
+    return "".join(parts)
+
+
+def chip_entities(centres_mm, radius, element_xy_mm, element_chip, owner, first_handle):
+    """DXF text of the CHIPS layer: a CIRCLE and a POINT at each chip centre, and a LINE
+    from the chip centre to each of its elements.
+
+    Parameters
+    ----------
+    centres_mm : (K, 2) array  [mm]   chip centres
+    radius : float  [mm]   the marker circle's radius
+    element_xy_mm : (N, 2) array  [mm]
+    element_chip : (N,) int   1-based chip of each element
+    owner : str   handle of the model space's block record
+    first_handle : int   the first of 2·K + N reserved handles
+
+    Returns
+    -------
+    str
+    """
+    head = f"330\n{owner}\n100\nAcDbEntity\n  8\nCHIPS\n"
+    r = repr(float(radius))
+    cx = [repr(float(v)) for v in centres_mm[:, 0]]
+    cy = [repr(float(v)) for v in centres_mm[:, 1]]
+    parts = []
+    h = first_handle
+    for x, y in zip(cx, cy, strict=True):
+        parts.append(
+            f"  0\nCIRCLE\n  5\n{h:X}\n{head}100\nAcDbCircle\n"
+            f" 10\n{x}\n 20\n{y}\n 30\n0.0\n 40\n{r}\n"
+            f"  0\nPOINT\n  5\n{h + 1:X}\n{head}100\nAcDbPoint\n"
+            f" 10\n{x}\n 20\n{y}\n 30\n0.0\n"
+        )
+        h += 2
+    for (ex, ey), c in zip(element_xy_mm, element_chip, strict=True):
+        k = int(c) - 1
+        parts.append(
+            f"  0\nLINE\n  5\n{h:X}\n{head}100\nAcDbLine\n"
+            f" 10\n{cx[k]}\n 20\n{cy[k]}\n 30\n0.0\n"
+            f" 11\n{float(ex)!r}\n 21\n{float(ey)!r}\n 31\n0.0\n"
+        )
+        h += 1
     return "".join(parts)
 
 

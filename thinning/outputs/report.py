@@ -68,6 +68,7 @@ CAUTIONS: tuple[str, ...] = (
 SECTIONS: tuple[tuple[str, str], ...] = (
     ("summary", "Summary"),
     ("layout", "Layout"),
+    ("tiles", "Tiles and chips"),
     ("pattern", "Pattern in u-v"),
     ("cuts", "Principal-plane cuts"),
     ("scan", "Worst sidelobe across the scan cone"),
@@ -95,6 +96,7 @@ img{max-width:100%;height:auto;display:block;margin:.6em 0;border:1px solid #eee
 tr.met td:last-child{color:#17692a}tr.failed td:last-child{color:#b00020}
 pre.spec{background:#f7f7f7;border:1px solid #ddd;padding:.6em;overflow:auto;font-size:.85em}
 ul.cautions li{margin-bottom:.5em}
+.tilemap svg{width:100%;height:auto;max-height:85vh;display:block}
 """
     + SVG_CSS
 )
@@ -129,6 +131,7 @@ def build_report(
     spec=None,
     requirements: Mapping | None = None,
     notes: Mapping[str, str] | None = None,
+    tile_map: str | None = None,
 ) -> Path:
     """Write the report as one self-contained HTML file.
 
@@ -172,6 +175,10 @@ def build_report(
         Verdicts of :func:`thinning.analysis.requirements.judge`, shown first.
     notes : dict of str to str, optional
         Plain-text notes under the figures: ``pattern`` (where the PSL is).
+    tile_map : str, optional
+        The per-tile count map as an ``<svg>`` element
+        (:func:`thinning.outputs.tile_map.tile_map_svg`), shown in the tiles section (which
+        appears when ``metrics`` has ``tiles``).
 
     Returns
     -------
@@ -221,6 +228,7 @@ def build_report(
     body = {
         "summary": lead + "<h3>Figures of merit</h3>" + rs.summary_html(m, kind),
         "layout": drawing,
+        "tiles": _tiles_section(m, tile_map),
         "pattern": _img(figures.get("uv_map"), "Array factor in u-v")
         + _mask_figure(figures)
         + (f"<p>{_e(pattern_note)}</p>" if pattern_note else "")
@@ -290,6 +298,7 @@ def report_for_layout(
     spec=None,
     requirements: Mapping | None = None,
     footprint_mm: float | None = None,
+    tiling=None,
 ) -> Path:
     """Score a layout, draw every figure and write the HTML report.
 
@@ -317,6 +326,7 @@ def report_for_layout(
     spec : thinning.spec.Spec, optional   name, description, constraints, the appendix
     requirements : dict, optional   verdicts (:func:`thinning.analysis.requirements.judge`)
     footprint_mm : float, optional  [mm]   element diameter in the drawing
+    tiling : thinning.geometry.tiles.Tiling, optional   the count map of the tiles section
 
     Returns
     -------
@@ -331,6 +341,7 @@ def report_for_layout(
     from ..units import wavelength as _wavelength
     from . import figures as fg
     from .svg_drawing import layout_svg
+    from .tile_map import tile_map_svg
 
     path = Path(path)
     if not path.parent.is_dir():
@@ -414,7 +425,17 @@ def report_for_layout(
             "pattern": "" if where is None else where["text"],
             "layout": _dims(layout, aperture),
         },
+        tile_map=None if tiling is None else tile_map_svg(tiling, aperture),
     )
+
+
+def _tiles_section(metrics: Mapping, tile_map: str | None) -> str:
+    """The tiles section (:mod:`thinning.outputs.tile_report`) when the layout is tiled."""
+    if not metrics.get("tiles"):
+        return ""
+    from .tile_report import tiles_html
+
+    return tiles_html(metrics["tiles"], metrics, tile_map)
 
 
 def _mask_figure(figures) -> str:
