@@ -227,13 +227,15 @@ def run_design(
     if problem.tile_grid is not None:
         if compare_unconstrained is None:
             compare_unconstrained = spec.tiles.compare_unconstrained
-        result.tiling = tiled_figures(spec, problem, layout, search, meta, compare_unconstrained)
+        result.tiling = tiled_figures(
+            spec, problem, layout, search, meta, compare_unconstrained, progress
+        )
     extra = None if extra_outputs is None else (lambda stage: extra_outputs(result, stage))
     result.files = write_run_files(out, layout, meta, extra, result.tiling)
     return result
 
 
-def tiled_figures(spec: Spec, problem, layout, search, meta, compare: bool):
+def tiled_figures(spec: Spec, problem, layout, search, meta, compare: bool, progress=None):
     """The tiles and chips of a tiled design (a :class:`thinning.geometry.tiles.Tiling`), and
     ``meta["tiles"]``: counts, boards, chips and, when ``compare``, the cost of the
     constraint against an unconstrained design of the same budget and limits."""
@@ -246,6 +248,8 @@ def tiled_figures(spec: Spec, problem, layout, search, meta, compare: bool):
     if compare:
         plain = dataclasses.replace(spec, tiles=None, search_method=_free_method(spec))
         plain_problem = plain.problem(problem.sites)
+        if progress is not None:
+            progress({"note": f"designing without the tile rules ({plain.method}), to compare"})
         run = run_method(
             plain_problem,
             plain.method,
@@ -285,7 +289,11 @@ def tiling_of(spec: Spec, sites, mask, grid=None):
     if grid.rules.channels_per_chip is not None:
         site = np.flatnonzero(mask)
         chips = group_chips(
-            sites.x[site], sites.y[site], grid.tile_of_site[site], grid.rules.channels_per_chip
+            sites.x[site],
+            sites.y[site],
+            grid.tile_of_site[site],
+            grid.rules.channels_per_chip,
+            n_tiles=grid.n_tiles,
         )
     return Tiling.of_mask(grid, mask, chips)
 

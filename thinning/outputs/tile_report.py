@@ -81,21 +81,24 @@ def _cost_html(unc, metrics: Mapping) -> str:
         ("Penalty of the tile constraint (PSL)", _num(penalty, 2, "dB")),
         (
             "Unconstrained run",
-            f"{_num(unc.get('time_limit_s'), 0, 's')} time limit, "
-            f"{unc.get('evaluations', '—')} evaluations",
+            f"{unc.get('method', '')} {_num(unc.get('time_limit_s'), 0, 's')} time limit, "
+            f"{_count(unc.get('evaluations'))} evaluations",
         ),
     ]
     text = (
-        "The same budget designed without tiles, by the same method for a shorter time; "
-        "the penalty is the tiled design's PSL less the unconstrained one's (positive: the "
-        "tiles cost that much)."
+        "The same budget, seed and limits designed without tiles; the penalty is the tiled "
+        "design's PSL less the unconstrained one's (positive: the tiles cost that much)."
     )
     if _finite(penalty) and float(penalty) < 0:
         text += (
-            " Here it is negative: the short unconstrained run did worse than the tiled "
-            "design, so the figure bounds the cost rather than measures it."
+            " Here it is negative: the unconstrained run did worse than the tiled design, so "
+            "the figure bounds the cost rather than measures it."
         )
     return _rows(rows) + f'<p class="note">{_e(text)}</p>'
+
+
+def _count(v) -> str:
+    return "—" if v is None else f"{int(v):,}"
 
 
 def _repeat_html(lobe) -> str:
@@ -150,6 +153,17 @@ def tiles_html(tiles: Mapping, metrics: Mapping | None = None, map_svg: str | No
     ]
     if t.get("limit_full") is not None:
         rows.append(("Limit of a full tile", str(t["limit_full"])))
+    if _finite(t.get("envelope_bound_db")):
+        rows.append(
+            (
+                "Envelope bound under the tile limits",
+                _num(t["envelope_bound_db"], 2, "dB")
+                + " (the peak of the expected pattern of draws from the density envelope the "
+                "counts were planned from; the design's PSL is "
+                + _num(m.get("psl_db"), 2, "dB")
+                + ")",
+            )
+        )
     rows.append(
         (
             "Boards",
