@@ -170,6 +170,24 @@ def main():
         p.write_text(json.dumps(data, indent=1) + "\n")
 
 
+def plan_bound(case: str):
+    """The envelope bound of the case's plan  [dB]: the density envelope's (the LP of the
+    density method) for the unconstrained panel, the envelope under the tile limits that the
+    tile counts were planned from for the tiled ones; None where the counts are given
+    (exactly 32 per tile)."""
+    from thinning.search import modular
+    from thinning.search.density import optimised_envelope
+
+    spec = spec_of(case, 1, 1.0)
+    problem = spec.problem()
+    if problem.tile_grid is None:
+        return float(optimised_envelope(problem).bound_db)
+    if spec.method == "modular":
+        targets, _ = modular._plan_tile_counts(problem)
+        modular.plan_boards(problem, targets, int(spec.tiles.patterns))
+    return problem.tile_plan_bound_db
+
+
 def report(rows, limit) -> dict:
     def med(case, key):
         vals = [r[key] for r in rows if r["case"] == case]
@@ -182,8 +200,8 @@ def report(rows, limit) -> dict:
         f"{limit:g} s per case (median over seeds), {platform.processor() or platform.machine()}"
     )
     print(
-        f"{'case':<16}{'method':<9}{'PSL dB':>8}{'penalty':>9}{'ASL dB':>8}{'counts':>9}"
-        f"{'boards':>7}{'evals':>8}  aim"
+        f"{'case':<16}{'method':<9}{'PSL dB':>8}{'bound':>8}{'penalty':>9}{'ASL dB':>8}"
+        f"{'counts':>9}{'boards':>7}{'evals':>8}  aim"
     )
     out = {"time_limit_s": limit, "cases": {}}
     for case in [*CASES, "random"]:
@@ -206,8 +224,10 @@ def report(rows, limit) -> dict:
                 )
         r0 = [r for r in rows if r["case"] == case][0]
         counts = f"{r0['count_min']}-{r0['count_max']}"
+        bound = plan_bound(case) if case != "random" else None
         print(
             f"{case:<16}{r0['method']:<9}{psl:>8.2f}"
+            f"{'—' if bound is None else f'{bound:.2f}':>8}"
             f"{'' if pen is None else f'{pen:+.2f}':>9}{med(case, 'asl_db'):>8.2f}"
             f"{counts:>9}{r0['boards']:>7}{int(med(case, 'evaluations')):>8}  {verdict}"
         )
@@ -219,6 +239,7 @@ def report(rows, limit) -> dict:
             )
         out["cases"][case] = {
             "psl_db": psl,
+            "envelope_bound_db": None if bound is None else round(bound, 3),
             "penalty_db": None if pen is None else round(pen, 3),
             "asl_db": med(case, "asl_db"),
             "counts": counts,
@@ -226,6 +247,13 @@ def report(rows, limit) -> dict:
             "evaluations": int(med(case, "evaluations")),
             "aim": verdict,
         }
+    print(
+        "bound: the peak of the expected pattern of draws from the density envelope the "
+        "counts were planned from (under the tile limits; for boards, each tile filled "
+        "uniformly to its board's count); a layout can beat it.\n"
+        "The issue quotes, for this panel, an unconstrained 60 s design at -24.3 dB and an "
+        "annealing search at -16.9 dB for exactly 32 per tile (not measured here)."
+    )
     out["seeds"] = sorted({r["seed"] for r in rows})
     out["rows"] = rows
     return out

@@ -168,6 +168,7 @@ def plan_boards(problem, targets, n_boards) -> tuple[np.ndarray, np.ndarray, np.
             f"at most {n_boards} board(s) on {full.size} full tiles and the partial tiles; "
             "choose a budget that fits"
         )
+    problem.tile_plan_bound_db = float(best[0])  # the boards' own expected pattern
     return best[1], best[2], best[3]
 
 
