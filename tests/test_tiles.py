@@ -31,7 +31,7 @@ from thinning.geometry.tiles import (
     canonical,
     transform,
 )
-from thinning.search import run_method
+from thinning.search import run_method, tile_counts
 from thinning.search.problem import ThinningProblem
 from thinning.spec import parse_spec
 
@@ -161,9 +161,11 @@ def test_canonical_orientation_mounts_the_board(bits, name):
 # -- counts kept exactly by every method -----------------------------------------------------
 def _problem(rules, n, hole=False, symmetry="none"):
     sites = _sites(16, 16, hole=hole)
-    return ThinningProblem(
+    problem = ThinningProblem(
         sites, n, LAM, math.radians(10), tiles=rules, symmetry=symmetry, source="t.toml"
     )
+    tile_counts.prepare(problem)
+    return problem
 
 
 CASES = [

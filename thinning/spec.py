@@ -25,7 +25,7 @@ from .geometry.aperture import Aperture, check_holes_inside
 from .geometry.dxf_panel import panel_from_spec_table
 from .geometry.lattice import LATTICE_KINDS, Lattice, Sites, grating_lobe_positions
 from .geometry.tiles import TILE_KEYS, tiles_from_spec
-from .search import METHODS
+from .search import METHODS, tile_counts
 from .search.density import LARGE_SITES
 from .search.problem import OBJECTIVES, SYMMETRIES, ThinningProblem, outer_ring
 from .units import deg_to_rad, ghz_to_hz, wavelength
@@ -311,7 +311,7 @@ class Spec:
                 f"{where(src, 'budget.elements')}{n}: more than the {m} sites the aperture holds"
             )
         pinned, forbidden = self.constraint_masks(sites)
-        return ThinningProblem(
+        problem = ThinningProblem(
             sites,
             n,
             self.wavelength,
@@ -332,6 +332,8 @@ class Spec:
             hpbw_max=self.hpbw_max,
             tiles=self.tiles,
         )
+        tile_counts.prepare(problem)  # a budget the tiles cannot take is refused here
+        return problem
 
     def constraint_masks(self, sites: Sites) -> tuple[np.ndarray, np.ndarray]:
         """(pinned, forbidden): which sites the [constraints] keep on and keep off."""

@@ -438,6 +438,7 @@ def _run_tiled(problem, tracker, rng, mod, options):
     (:func:`~.tile_counts.transfer_polish`) the rest."""
     from . import tile_counts
 
+    tile_counts.prepare(problem)  # (a problem built without the spec: its counts planned)
     if getattr(problem, "tile_grid", None) is None or not tile_counts.free_counts(problem):
         return mod.run(problem, tracker, rng, options)
     limits = tracker.time_limit_s, tracker.max_evaluations

@@ -60,7 +60,7 @@ from scipy.signal.windows import taylor
 
 from ..errors import SpecError, where
 from .random import DEFAULT_BATCH, _positive_int, best_of_draws
-from .sampling import systematic
+from .sampling import scale_to_count, systematic
 
 __all__ = [
     "TAPERS",
@@ -169,29 +169,6 @@ def taper_values(sites, kind: str = "taylor", sll_db: float = 30.0, nbar: int = 
     return np.interp(t, np.linspace(0.0, 1.0, half.size), half)
 
 
-def _scale_to_count(w: np.ndarray, ones: int) -> np.ndarray:
-    """p = min(1, s·w) with Σp = ones: cap at 1 and spread the excess over the rest."""
-    p = np.zeros(w.size)
-    if ones <= 0:
-        return p
-    if ones >= w.size:
-        return np.ones(w.size)
-    capped = np.zeros(w.size, dtype=bool)
-    while True:
-        free = ~capped
-        left = ones - int(capped.sum())
-        wf = w[free]
-        total = float(wf.sum())
-        scaled = left * (wf / total if total > 0 else np.full(wf.size, 1.0 / wf.size))
-        over = scaled >= 1.0
-        if not over.any():
-            p[free] = scaled
-            p[capped] = 1.0
-            return p
-        idx = np.flatnonzero(free)[over]
-        capped[idx] = True
-
-
 def taper_probabilities(problem, options: dict | None = None) -> np.ndarray:
     """On-probability of every gene, following an amplitude taper, with the exact budget.
 
@@ -235,7 +212,7 @@ def taper_probabilities(problem, options: dict | None = None) -> np.ndarray:
     p = np.zeros(g)
     for c, ones in enumerate(problem.class_ones):
         idx = np.flatnonzero(problem.gene_class == c)
-        p[idx] = _scale_to_count(w[idx], int(ones))
+        p[idx] = scale_to_count(w[idx], int(ones))
     return p
 
 

@@ -32,6 +32,8 @@ from ..engine.pattern import FFTPatternEngine
 from ..errors import SpecError, where
 from ..geometry.lattice import Sites
 from .swap_state import SWAP_ADVANCE_GENES, SwapBase
+from .tile_classes import composition as _composition
+from .tile_classes import tile_class_layout, tile_orbits, tile_units
 
 __all__ = ["SYMMETRIES", "OBJECTIVES", "ThinningProblem", "Evaluation"]
 
@@ -159,7 +161,7 @@ class ThinningProblem:
     hpbw_max: float | None = None
     envelope: object = None
     tiles: object = None
-    tile_counts: object = None
+    tile_counts: object = None  # (T,) per-tile counts; None: planned (tile_counts.prepare)
 
     def __post_init__(self):
         m = len(self.sites)
@@ -245,50 +247,49 @@ class ThinningProblem:
 
             self.tile_grid = TileGrid(self.sites, self.tiles, src, usable=self.available_sites)
             self._partners = partners
-            if self.tiles.mode != "patterns":
-                self.apply_tile_counts(self.tile_counts)
+            self.tile_units()  # refuses a tile grid the symmetry does not map onto itself
+            rules, grid = self.tiles, self.tile_grid
+            counts = self.tile_counts
+            if counts is None and rules.elements_per_tile is not None and grid.full.all():
+                counts = np.full(grid.n_tiles, rules.elements_per_tile)  # identical boards
+                if counts.sum() != n:
+                    raise SpecError(
+                        f"{where(src, 'budget.elements')}{n}: {grid.n_tiles} tiles of "
+                        f"exactly {rules.elements_per_tile} take {int(counts.sum())}"
+                    )
+            self.tile_counts = None
+            if counts is not None and rules.mode != "patterns":
+                self.apply_tile_counts(counts)
         if self.robust is not None:
             self._init_robust()
 
-    def apply_tile_counts(self, counts=None) -> None:
-        """Fix the element count of every tile: one class per tile orbit and orbit size
-        (:mod:`thinning.search.tile_counts`). ``counts`` (T,) given, or None: planned from the
-        unconstrained density envelope."""
-        from . import tile_counts as tc
-
-        grid = self.tile_grid
+    def apply_tile_counts(self, counts) -> None:
+        """Fix the element count of every tile (``counts``, (T,)): one class per tile orbit
+        and orbit size (:mod:`thinning.search.tile_classes`), so that every method keeps
+        them. :func:`thinning.search.tile_counts.prepare` plans them when the spec does not
+        give them."""
         if not hasattr(self, "_untiled_classes"):
             self._untiled_classes = (self.gene_class, self.class_sizes, self.class_ones)
         self.gene_class, self.class_sizes, self.class_ones = self._untiled_classes
-        t_orbit = tc.tile_orbits(self, self._partners)
-        size_of_gene = self.orbit_size[self.gene_orbit]
-        group_of_gene = t_orbit[grid.tile_of_site[self.gene_sites()[:, 0]]]
-        units = tc._units(self, t_orbit, size_of_gene, group_of_gene)
-        rules = self.tiles
-        if counts is None and rules.elements_per_tile is not None and grid.full.all():
-            counts = np.full(grid.n_tiles, rules.elements_per_tile)  # identical boards
-            if counts.sum() != self.elements:
-                raise SpecError(
-                    f"{where(self.source, 'budget.elements')}{self.elements}: {grid.n_tiles} "
-                    f"tiles of exactly {rules.elements_per_tile} take {int(counts.sum())}"
-                )
-        if counts is None:
-            from .envelope import site_probabilities
-
-            env = tc.planned_envelope(self)
-            counts = tc.plan_counts(self, site_probabilities(self, env.genes), t_orbit, units)
-            self.tile_plan_bound_db = float(env.bound_db)
-            self.notes.append(
-                f"tile counts planned from the density envelope under the tile limits "
-                f"(bound {env.bound_db:.2f} dB): {int(counts.min())} to {int(counts.max())} "
-                "per tile"
-            )
+        t_orbit, _ = self.tile_units()
         counts = np.asarray(counts, np.int64)
         self.tile_counts = counts
-        self.gene_class, self.class_sizes, self.class_ones = tc.tile_class_layout(
-            self, counts, t_orbit, size_of_gene, group_of_gene
+        self.gene_class, self.class_sizes, self.class_ones = tile_class_layout(
+            self, counts, t_orbit, self.orbit_size[self.gene_orbit], self._group_of_gene
         )
         self._swap_cache = None
+
+    def tile_units(self) -> tuple[np.ndarray, np.ndarray]:
+        """(tile orbit of every tile, granularity of each tile orbit's per-tile count)."""
+        if getattr(self, "_tile_units", None) is None:
+            t_orbit = tile_orbits(self, self._partners)
+            size_of_gene = self.orbit_size[self.gene_orbit]
+            self._group_of_gene = t_orbit[self.tile_grid.tile_of_site[self.gene_sites()[:, 0]]]
+            self._tile_units = (
+                t_orbit,
+                tile_units(self, t_orbit, size_of_gene, self._group_of_gene),
+            )
+        return self._tile_units
 
     def _init_robust(self):
         from ..engine.excitation import ErrorModel
@@ -623,52 +624,3 @@ class ThinningProblem:
         if self.objective == "asl":
             return np.asarray(asl_db) + w * np.asarray(psl_db)
         return np.asarray(psl_db) + w * np.asarray(asl_db)
-
-
-def _composition(need, sizes, avail, n, src, symmetry) -> np.ndarray:
-    """How many orbits of each size to switch on: Σ sizeₖ·onesₖ = need, 0 ≤ onesₖ ≤ availₖ,
-    as close as possible to the same fill in every class."""
-    sizes = [int(s) for s in sizes]
-    avail = [int(a) for a in avail]
-    total = sum(s * a for s, a in zip(sizes, avail, strict=True))
-    if need > total:
-        raise SpecError(
-            f"{where(src, 'budget.elements')}{n}: more than the sites available "
-            f"({total} free after constraints)"
-        )
-    if not sizes:
-        return np.zeros(0, dtype=np.int64)
-    f = need / total if total else 0.0
-    best, best_err = None, math.inf
-    # search the larger classes near their proportional share; the size-1 (or smallest) class
-    # takes the remainder
-    (*big,) = range(1, len(sizes))
-    ranges = []
-    for k in big:
-        centre = f * avail[k]
-        lo = max(0, int(math.floor(centre)) - 3)
-        hi = min(avail[k], int(math.ceil(centre)) + 3)
-        ranges.append(range(lo, hi + 1) if lo <= hi else range(0))
-    import itertools
-
-    for combo in itertools.product(*ranges) if ranges else [()]:
-        rest = need - sum(sizes[k] * c for k, c in zip(big, combo, strict=True))
-        if rest < 0 or rest % sizes[0] or rest // sizes[0] > avail[0]:
-            continue
-        ones = [rest // sizes[0], *combo]
-        err = sum((o - f * a) ** 2 for o, a in zip(ones, avail, strict=True))
-        if err < best_err:
-            best, best_err = ones, err
-    if best is None:
-        for combo in itertools.product(*[range(avail[k] + 1) for k in big]):
-            rest = need - sum(sizes[k] * c for k, c in zip(big, combo, strict=True))
-            if 0 <= rest and rest % sizes[0] == 0 and rest // sizes[0] <= avail[0]:
-                best = [rest // sizes[0], *combo]
-                break
-    if best is None:
-        raise SpecError(
-            f"{where(src, 'budget.elements')}{n}: cannot be met exactly with symmetry "
-            f"{symmetry!r} (symmetric groups of {', '.join(map(str, sizes))} sites); "
-            "choose a budget that fits or another symmetry"
-        )
-    return np.array(best, dtype=np.int64)

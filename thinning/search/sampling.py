@@ -28,7 +28,14 @@ import math
 
 import numpy as np
 
-__all__ = ["systematic", "error_diffusion", "DIFFUSION_FILTERS", "ORIENTATIONS", "CERTAIN"]
+__all__ = [
+    "systematic",
+    "error_diffusion",
+    "scale_to_count",
+    "DIFFUSION_FILTERS",
+    "ORIENTATIONS",
+    "CERTAIN",
+]
 
 #: Probabilities this close to 1 are treated as certain in :func:`systematic`.
 CERTAIN = 1.0 - 1e-9
@@ -226,3 +233,26 @@ def error_diffusion(
         out = out.T
     genome = out[rows, cols].copy()
     return _exact_counts(problem, genome, p)
+
+
+def scale_to_count(w: np.ndarray, ones: int) -> np.ndarray:
+    """p = min(1, s·w) with Σp = ones: cap at 1 and spread the excess over the rest."""
+    p = np.zeros(w.size)
+    if ones <= 0:
+        return p
+    if ones >= w.size:
+        return np.ones(w.size)
+    capped = np.zeros(w.size, dtype=bool)
+    while True:
+        free = ~capped
+        left = ones - int(capped.sum())
+        wf = w[free]
+        total = float(wf.sum())
+        scaled = left * (wf / total if total > 0 else np.full(wf.size, 1.0 / wf.size))
+        over = scaled >= 1.0
+        if not over.any():
+            p[free] = scaled
+            p[capped] = 1.0
+            return p
+        idx = np.flatnonzero(free)[over]
+        capped[idx] = True

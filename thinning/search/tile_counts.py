@@ -28,41 +28,33 @@ accordingly); tiles that are images of one another carry the same count (a *tile
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from ..errors import SpecError, where
 
-__all__ = ["tile_orbits", "plan_counts", "tile_class_layout"]
+__all__ = ["prepare", "plan_counts", "planned_envelope", "free_counts", "transfer_polish"]
 
 
-def tile_orbits(problem, partners) -> np.ndarray:
-    """The tile orbit of every tile (T,) under the problem's symmetry ``partners`` (the image
-    of each site under each operation, −1 where none); refuses a tile grid that the symmetry
-    does not map onto itself."""
+def prepare(problem) -> None:
+    """Plan and fix the tile counts of a tiled problem whose spec does not give them (a
+    capacity, whole chips, partial tiles): the planned envelope's tile sums
+    (:func:`plan_counts`), its bound kept as ``problem.tile_plan_bound_db``. Nothing to do
+    without tiles, with boards (``patterns``: the modular method plans its own) or when the
+    counts are fixed already."""
     grid = problem.tile_grid
-    t_of = grid.tile_of_site
-    orbit = np.arange(grid.n_tiles)
-    for img in partners:
-        ok = img >= 0
-        src_t, dst_t = t_of[ok], t_of[img[ok]]
-        # a well-defined tile map: every site of a tile lands in one and the same tile
-        first = np.full(grid.n_tiles, -1)
-        first[src_t] = dst_t
-        if np.any(first[src_t] != dst_t):
-            raise SpecError(
-                f"{where(problem.source, 'tiles.origin_mm')}the tile grid is not symmetric "
-                f"under {problem.symmetry}: place the tile origin so that tile boundaries are "
-                "symmetric about the panel's centre"
-            )
-        for _ in range(4):
-            lo = np.minimum(orbit[src_t], orbit[dst_t])
-            np.minimum.at(orbit, src_t, lo)
-            np.minimum.at(orbit, dst_t, lo)
-            orbit = orbit[orbit]
-    _, ids = np.unique(orbit, return_inverse=True)
-    return ids.ravel()
+    if grid is None or grid.rules.mode == "patterns" or problem.tile_counts is not None:
+        return
+    from .envelope import site_probabilities
+
+    t_orbit, units = problem.tile_units()
+    env = planned_envelope(problem)
+    counts = plan_counts(problem, site_probabilities(problem, env.genes), t_orbit, units)
+    problem.tile_plan_bound_db = float(env.bound_db)
+    problem.notes.append(
+        f"tile counts planned from the density envelope under the tile limits "
+        f"(bound {env.bound_db:.2f} dB): {int(counts.min())} to {int(counts.max())} per tile"
+    )
+    problem.apply_tile_counts(counts)
 
 
 def planned_envelope(problem):
@@ -92,21 +84,6 @@ def planned_envelope(problem):
             problem._envelopes = kept
         problem.envelope = None
     return env
-
-
-def _units(problem, t_orbit, size_of_gene, group_of_gene) -> np.ndarray:
-    """The granularity of each tile orbit's per-tile count: a whole chip's channels with
-    ``whole_chips``, times what the orbit sizes allow (a mirror pair inside one tile adds 2)."""
-    step = problem.tile_grid.rules.step
-    n_groups = int(t_orbit.max()) + 1
-    per = np.bincount(t_orbit, minlength=n_groups)
-    units = np.full(n_groups, step, np.int64)
-    for g in range(n_groups):
-        sizes = np.unique(size_of_gene[group_of_gene == g])
-        if sizes.size:
-            gcd = int(np.gcd.reduce((sizes // per[g]).astype(np.int64)))
-            units[g] = step * gcd // math.gcd(step, gcd)
-    return units
 
 
 def plan_counts(problem, site_p, t_orbit, units) -> np.ndarray:
@@ -183,49 +160,6 @@ def plan_counts(problem, site_p, t_orbit, units) -> np.ndarray:
             "multiple of the unit"
         )
     return counts[t_orbit].astype(np.int64)
-
-
-def tile_class_layout(problem, counts, t_orbit, size_of_gene, group_of_gene):
-    """(gene_class, class_sizes, class_ones) with one class per tile orbit and orbit size,
-    the counts of each tile orbit split over its orbit sizes
-    (:func:`thinning.search.problem._composition`)."""
-    from .problem import _composition
-
-    grid = problem.tile_grid
-    n_groups = int(t_orbit.max()) + 1
-    per = np.bincount(t_orbit, minlength=n_groups)
-    pinned = np.bincount(t_orbit[grid.tile_of_site[problem.pinned_sites]], minlength=n_groups)
-    first_tile = np.array([np.flatnonzero(t_orbit == g)[0] for g in range(n_groups)])
-    gene_class = np.zeros(size_of_gene.size, np.int64)
-    sizes_out, ones_out = [], []
-    for g in range(n_groups):
-        genes = np.flatnonzero(group_of_gene == g)
-        need = int(counts[first_tile[g]]) * int(per[g]) - int(pinned[g])
-        sizes = np.unique(size_of_gene[genes])
-        avail = np.array([(size_of_gene[genes] == s).sum() for s in sizes])
-        t = int(first_tile[g])
-        ones = (
-            _composition(
-                need,
-                sizes,
-                avail,
-                need,
-                problem.source,
-                problem.symmetry,
-            )
-            if sizes.size
-            else np.zeros(0, np.int64)
-        )
-        if not sizes.size and need:
-            raise SpecError(
-                f"{where(problem.source, 'tiles')}tile {t + 1} has no free sites for its "
-                f"{need} elements"
-            )
-        for s, o in zip(sizes, ones, strict=True):
-            gene_class[genes[size_of_gene[genes] == s]] = len(sizes_out)
-            sizes_out.append(int(s))
-            ones_out.append(int(o))
-    return gene_class, np.array(sizes_out, np.int64), np.array(ones_out, np.int64)
 
 
 #: Share of a tiled run (time or evaluations) the method gets before the transfer polish.
