@@ -14,10 +14,15 @@ best of random draws (unconstrained) at the evaluations of the 1-board run. For 
 penalty against unconstrained, ASL, the count range over the tiles, the distinct full-tile
 boards, the evaluations, and the issue's aim with met/not met.
 
+``--large`` runs instead one large tiled panel: 256 × 256 sites (65,536) at the same pitch,
+8 × 8-site tiles (1,024), at most 48 per tile, 32,768 elements, the ``density`` method (the
+default from 4,096 sites): the time to read the spec and build the problem (the count plan's
+programme), the run, the scored PSL and ASL, the plan's bound and the peak memory.
+
 Usage::
 
     python benchmarks/bench_tiles.py [--time S] [--seeds N] [--cases LIST] [--json FILE]
-                                     [--raw FILE] [--merge FILE,FILE]
+                                     [--raw FILE] [--merge FILE,FILE] [--large]
 
 ``--time`` (default 60) is each case's limit. ``--raw`` writes this run's rows for a later
 ``--merge`` (two processes, one per core, each with a part of ``--cases``).
@@ -132,6 +137,58 @@ def run_case(case: str, seed: int, limit: float, evaluations=None) -> dict:
     return row
 
 
+def machine() -> str:
+    return (
+        f"{platform.machine()}, {os.cpu_count()} CPUs, Python {platform.python_version()}, "
+        f"numpy {np.__version__}"
+    )
+
+
+def run_large(limit: float) -> dict:
+    """The 65,536-site tiled panel (``--large``), one run of the default method."""
+    import resource
+
+    raw = json.loads(json.dumps(BASE))
+    raw["name"] = "large tiled panel"
+    raw["aperture"] = {"outline_mm": [[-1920, -1920], [1920, -1920], [1920, 1920], [-1920, 1920]]}
+    raw["budget"] = {"elements": 32768}
+    raw["tiles"] = {"size": [8, 8], "max_elements_per_tile": 48}
+    raw["search"] = {"seed": 1, "time_limit_s": limit}
+    t0 = time.perf_counter()
+    spec = parse_spec(raw, "bench-large.toml")
+    problem = spec.problem()
+    t1 = time.perf_counter()
+    res = run_method(problem, spec.method, 1, spec.options, time_limit_s=limit)
+    t2 = time.perf_counter()
+    _, m = score_spec_layout(spec, problem.sites, res.mask)
+    counts = problem.tile_grid.counts(res.mask)
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024  # kB on Linux
+    row = {
+        "sites": int(problem.sites.x.size),
+        "tiles": int(problem.tile_grid.n_tiles),
+        "method": spec.method,
+        "problem_s": round(t1 - t0, 1),
+        "run_s": round(t2 - t1, 1),
+        "psl_db": round(m["psl_db"], 3),
+        "asl_db": round(m["asl_db"], 3),
+        "envelope_bound_db": round(float(problem.tile_plan_bound_db), 3),
+        "evaluations": int(res.evaluations),
+        "count_min": int(counts.min()),
+        "count_max": int(counts.max()),
+        "peak_rss_mb": round(peak),
+    }
+    print(
+        f"large tiled panel: {row['sites']:,} sites, {row['tiles']:,} tiles of 8 x 8, at most "
+        f"48 per tile, 32,768 elements, {spec.method}, {limit:g} s\n"
+        f"  spec and problem (count plan) {row['problem_s']} s, run {row['run_s']} s, "
+        f"{row['evaluations']:,} evaluations\n"
+        f"  PSL {row['psl_db']:.2f} dB (plan bound {row['envelope_bound_db']:.2f} dB), "
+        f"ASL {row['asl_db']:.2f} dB, counts {row['count_min']}-{row['count_max']}, "
+        f"peak memory {row['peak_rss_mb']:,} MB"
+    )
+    return row
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--time", type=float, default=60.0)
@@ -140,7 +197,21 @@ def main():
     ap.add_argument("--json", default=None)
     ap.add_argument("--raw", default=None)
     ap.add_argument("--merge", default=None)
+    ap.add_argument("--large", action="store_true")
     args = ap.parse_args()
+    if args.large:
+        row = run_large(args.time)
+        if args.json:
+            p = Path(args.json)
+            data = json.loads(p.read_text()) if p.exists() else {}
+            data["tiles_large"] = {
+                "machine": machine(),
+                "date": time.strftime("%Y-%m-%d"),
+                "time_limit_s": args.time,
+                **row,
+            }
+            p.write_text(json.dumps(data, indent=1) + "\n")
+        return
     rows = []
     if args.merge:
         for f in args.merge.split(","):
@@ -166,7 +237,7 @@ def main():
     if args.json:
         p = Path(args.json)
         data = json.loads(p.read_text()) if p.exists() else {}
-        data["tiles"] = summary
+        data["tiles"] = {"machine": machine(), "date": time.strftime("%Y-%m-%d"), **summary}
         p.write_text(json.dumps(data, indent=1) + "\n")
 
 

@@ -131,3 +131,59 @@ def test_bad_polish_option():
         run_method(p, "density", 0, {"lobe_depth_db": -1}, max_evaluations=4)
     with pytest.raises(SpecError):
         run_method(p, "density", 0, {"polish": "yes"}, max_evaluations=4)
+
+
+def test_lp_move_on_many_tiles_keeps_its_size_and_the_counts(monkeypatch):
+    """A tiled panel has a class (a fixed count) per tile; the coordinated move's programme
+    keeps at most LP_CLASS_CAP·candidates genes of each side over all classes (here forced
+    to bind), and the move it returns keeps every class's count, switches on-genes off and
+    off-genes on, and its values equal the transform of the moved layout (math: the swap
+    identity above, to 1e-9 of N)."""
+    from scipy import optimize
+
+    from thinning.geometry.tiles import TileRules
+    from thinning.search import tile_counts
+
+    t = np.linspace(0, 2 * np.pi, 64, endpoint=False)
+    ap = Aperture.from_mm([[150.0 * math.cos(a), 150.0 * math.sin(a)] for a in t])
+    sites = Lattice.from_mm("rectangular", [15.0, 15.0], origin_mm=[7.5, 7.5]).sites_in(ap)
+    p = ThinningProblem(
+        sites,
+        len(sites) // 2,
+        LAM,
+        math.radians(20),
+        tiles=TileRules((2, 2), max_elements_per_tile=3),
+        source="t.toml",
+    )
+    tile_counts.prepare(p)
+    assert p.class_ones.size >= 50  # many classes: one per tile of 2 × 2 sites
+    columns = []
+    real = optimize.linprog
+
+    def spy(c, *args, **kwargs):
+        columns.append(np.size(c) - 1)
+        return real(c, *args, **kwargs)
+
+    monkeypatch.setattr(optimize, "linprog", spy)
+    monkeypatch.setattr(lobe_swaps, "LP_CLASS_CAP", 1)
+    rng = np.random.default_rng(5)
+    moves = 0
+    for _ in range(6):
+        g = p.random_genomes(rng, 1)[0]
+        lobes = lobe_swaps.WorstLobes(p, g, 3.0, 4096, 256, climb=8, dtype=np.float64)
+        move = lobes.lp_move(2.0, candidates=8, lobes=64)
+        if move is None:
+            continue
+        moves += 1
+        off, on, values = move
+        assert g[off].all() and not g[on].any()
+        np.testing.assert_array_equal(
+            np.bincount(p.gene_class[off], minlength=p.class_ones.size),
+            np.bincount(p.gene_class[on], minlength=p.class_ones.size),
+        )
+        moved = g.copy()
+        moved[off], moved[on] = False, True
+        s1, _ = _full_values(p, moved, lobes)
+        assert np.max(np.abs(values[: lobes.af.size] - s1)) <= 1e-9 * p.elements
+    assert columns and max(columns) <= 2 * 8  # each side at most LP_CLASS_CAP·candidates
+    assert moves >= 1

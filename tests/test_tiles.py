@@ -208,6 +208,25 @@ def test_every_method_keeps_the_tile_counts(case, method):
     _check_counts(problem, res.mask)
 
 
+@pytest.mark.parametrize("case", range(len(CASES)))
+def test_tiled_density_envelope_expects_the_planned_counts(case):
+    """Exact identity: the density method's envelope on a tiled problem expects, in every
+    tile, the tile's planned count (Σ of its sites' probabilities, pinned sites at 1), within
+    [0, 1] at every site, and its bound is the scored bound of those probabilities."""
+    from thinning.search.density import optimised_envelope
+    from thinning.search.envelope import envelope_bound
+
+    rules, n, hole = CASES[case]
+    problem = _problem(rules, n, hole)
+    env = optimised_envelope(problem, {"envelope_rings": 4, "envelope_sectors": 1})
+    grid = problem.tile_grid
+    expected = np.bincount(grid.tile_of_site, weights=env.sites, minlength=grid.n_tiles)
+    np.testing.assert_allclose(expected, problem.tile_counts, atol=1e-9)
+    assert env.sites.min() >= 0.0 and env.sites.max() <= 1.0 + 1e-12
+    assert env.bound_db == pytest.approx(envelope_bound(problem, env.sites)[0], abs=1e-9)
+    assert problem.envelope is env
+
+
 @settings(max_examples=15, deadline=None)
 @given(st.integers(0, 10_000), st.integers(0, len(CASES) - 1))
 def test_random_genomes_and_swaps_keep_counts(seed, case):

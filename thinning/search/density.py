@@ -222,18 +222,9 @@ def draw(problem, p, rng: np.random.Generator, k: int) -> np.ndarray:
     return systematic(problem, p, rng, k)
 
 
-def optimised_envelope(problem, options: dict | None = None):
-    """The linear-programme envelope of a problem (:func:`thinning.search.envelope.lp_envelope`),
-    computed once per problem and options and kept as ``problem.envelope``.
-
-    The Taylor envelope (``taper_sll_db``, ``taper_nbar``) is passed along, so the result is
-    never worse than it; a programme that fails (a degenerate panel) falls back to it, with a
-    note in ``problem.notes``.
-    """
-    from .envelope import Envelope, envelope_bound, lp_envelope, site_probabilities
-
-    options = dict(options or {})
-    key = tuple(
+def envelope_key(options: dict) -> tuple:
+    """The options an envelope depends on, as a cache key."""
+    return tuple(
         (k, options.get(k))
         for k in (
             "envelope_rings",
@@ -243,21 +234,72 @@ def optimised_envelope(problem, options: dict | None = None):
             "taper_nbar",
         )
     )
+
+
+def optimised_envelope(problem, options: dict | None = None):
+    """The linear-programme envelope of a problem (:func:`thinning.search.envelope.lp_envelope`),
+    computed once per problem and options and kept as ``problem.envelope``.
+
+    The Taylor envelope (``taper_sll_db``, ``taper_nbar``) is passed along, so the result is
+    never worse than it; a programme that fails (a degenerate panel) falls back to it, with a
+    note in ``problem.notes``. On a tiled problem (every tile's count fixed) the envelope is
+    the one the counts were planned from (:func:`thinning.search.tile_counts.planned_envelope`)
+    scaled within each tile to its count (:func:`tiled_envelope`).
+    """
+    from .envelope import Envelope, envelope_bound, lp_envelope, site_probabilities
+
+    options = dict(options or {})
+    key = envelope_key(options)
     cache = problem.__dict__.setdefault("_envelopes", {})
     if key not in cache:
-        taylor_genes = taper_probabilities(problem, {**options, "taper": "taylor"})
-        try:
-            env = lp_envelope(problem, options, taylor_genes)
-        except SpecError:
-            raise
-        except (ValueError, RuntimeError, np.linalg.LinAlgError) as exc:
-            site_p = site_probabilities(problem, taylor_genes)
-            bound, at = envelope_bound(problem, site_p)
-            env = Envelope("taylor", taylor_genes, site_p, bound, at, taylor_bound_db=bound)
-            problem.notes.append(f"envelope programme failed ({exc}); Taylor envelope used")
-        cache[key] = env
+        if getattr(problem, "tile_grid", None) is not None:
+            cache[key] = tiled_envelope(problem, options)
+        else:
+            taylor_genes = taper_probabilities(problem, {**options, "taper": "taylor"})
+            try:
+                env = lp_envelope(problem, options, taylor_genes)
+            except SpecError:
+                raise
+            except (ValueError, RuntimeError, np.linalg.LinAlgError) as exc:
+                site_p = site_probabilities(problem, taylor_genes)
+                bound, at = envelope_bound(problem, site_p)
+                env = Envelope("taylor", taylor_genes, site_p, bound, at, taylor_bound_db=bound)
+                problem.notes.append(f"envelope programme failed ({exc}); Taylor envelope used")
+            cache[key] = env
     problem.envelope = cache[key]
     return cache[key]
+
+
+def tiled_envelope(problem, options: dict):
+    """The envelope of a tiled problem: the planned envelope (the programme over the panel's
+    own basis with every tile's expected count within its limit) scaled within each class
+    (tile and orbit size) to the class's count, so every tile's expected count is its planned
+    count; its bound recomputed. Solving the programme over per-tile variables instead would
+    multiply its variables by the number of tiles (minutes at 65,536 sites)."""
+    import dataclasses
+    import time
+
+    from .envelope import envelope_bound, site_probabilities
+    from .tile_counts import planned_envelope
+
+    t0 = time.perf_counter()
+    plan = planned_envelope(problem, options)
+    genes = np.zeros(problem.n_genes)
+    order = np.argsort(problem.gene_class, kind="stable")
+    starts = np.searchsorted(problem.gene_class[order], np.arange(problem.class_ones.size + 1))
+    for c, ones in enumerate(problem.class_ones):
+        idx = order[starts[c] : starts[c + 1]]
+        genes[idx] = scale_to_count(plan.genes[idx], int(ones))
+    site_p = site_probabilities(problem, genes)
+    bound, at = envelope_bound(problem, site_p)
+    return dataclasses.replace(
+        plan,
+        genes=genes,
+        sites=site_p,
+        bound_db=bound,
+        bound_uv=at,
+        seconds=plan.seconds + time.perf_counter() - t0,
+    )
 
 
 def starting_layouts(problem, p, rng, draws: int) -> np.ndarray:

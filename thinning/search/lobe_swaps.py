@@ -80,6 +80,10 @@ DRIFT, MAX_DRIFT = 3.0, 40.0
 PEAKS, CLIMB = 512, 16
 #: Candidate genes (per side and class) and highest kept values of a programmed move.
 LP_CANDIDATES, LP_LOBES = 64, 128
+#: The programme's candidates of each side over all classes, in units of LP_CANDIDATES: a
+#: tiled panel has a class per tile (1,024 at 65,536 sites), and 64 per class would give
+#: HiGHS tens of thousands of columns for one move.
+LP_CLASS_CAP = 16
 #: Rounds without improvement, at the deepest band, that end the polish.
 STALL_ROUNDS = 2
 
@@ -360,8 +364,7 @@ class WorstLobes:
         prob = self.problem
         g_score, _ = self.gene_scores(focus)
         offs, ons, gains = [], [], []
-        for c in range(prob.class_ones.size):
-            idx = np.flatnonzero(prob.gene_class == c)
+        for idx in _class_members(prob):
             on_now = idx[self.genome[idx]]
             off_now = idx[~self.genome[idx]]
             k = min(max_step, on_now.size, off_now.size)
@@ -418,8 +421,7 @@ class WorstLobes:
         prob = self.problem
         g_score, _ = self.gene_scores(focus)
         offs, ons, cls = [], [], []
-        for c in range(prob.class_ones.size):
-            idx = np.flatnonzero(prob.gene_class == c)
+        for c, idx in enumerate(_class_members(prob)):
             on_now = idx[self.genome[idx]]
             off_now = idx[~self.genome[idx]]
             k = min(candidates, on_now.size, off_now.size)
@@ -430,6 +432,22 @@ class WorstLobes:
             cls.append(c)
         if not offs:
             return None
+        # many classes (a tile each): the programme keeps the best LP_CLASS_CAP·candidates of
+        # each side over all classes, and the classes left with both sides
+        cap = LP_CLASS_CAP * candidates
+        if sum(o.size for o in offs) > cap:
+            all_off, all_on = np.concatenate(offs), np.concatenate(ons)
+            keep = np.zeros(prob.n_genes, dtype=bool)
+            keep[all_off[np.argpartition(-g_score[all_off], cap - 1)[:cap]]] = True
+            keep[all_on[np.argpartition(g_score[all_on], cap - 1)[:cap]]] = True
+            kept = []
+            for o, p_, c in zip(offs, ons, cls, strict=True):
+                o, p_ = o[keep[o]], p_[keep[p_]]
+                if o.size and p_.size:
+                    kept.append((o, p_, c))
+            if not kept:
+                return None
+            offs, ons, cls = (list(t) for t in zip(*kept, strict=True))
         both = np.concatenate([self.af, self.ap])
         amp = np.abs(both)
         rows = np.argsort(-amp)[: min(lobes, amp.size)]
@@ -581,6 +599,13 @@ def polish(problem, tracker, genome, options: dict | None = None, until: float |
             if stalls >= STALL_ROUNDS:
                 break
     return best_g
+
+
+def _class_members(problem) -> list[np.ndarray]:
+    """The genes of each class (ascending), by one sort rather than a scan per class."""
+    order = np.argsort(problem.gene_class, kind="stable")
+    starts = np.searchsorted(problem.gene_class[order], np.arange(problem.class_ones.size + 1))
+    return [order[starts[c] : starts[c + 1]] for c in range(problem.class_ones.size)]
 
 
 def _done(tracker, until) -> bool:

@@ -57,13 +57,19 @@ def prepare(problem) -> None:
     problem.apply_tile_counts(counts)
 
 
-def planned_envelope(problem):
+def planned_envelope(problem, options: dict | None = None):
     """The unconstrained problem's density envelope with every tile's expected count within
     its limit (the programme of :func:`thinning.search.density.optimised_envelope` with the
     tile limits as constraints; without them under a symmetry, whose orbits spread over
-    tiles), for planning the counts; the problem's caches are left as they were."""
-    from .density import optimised_envelope
+    tiles), for planning the counts. Computed once per problem and envelope options (kept in
+    ``problem._planned_envelopes``); the problem's other caches are left as they were."""
+    from .density import envelope_key, optimised_envelope
 
+    options = dict(options or {})
+    key = envelope_key(options)
+    cache = problem.__dict__.setdefault("_planned_envelopes", {})
+    if key in cache:
+        return cache[key]
     grid = problem.tile_grid
     classes = (problem.gene_class, problem.class_sizes, problem.class_ones)
     if hasattr(problem, "_untiled_classes"):
@@ -73,8 +79,9 @@ def planned_envelope(problem):
         pins = np.bincount(grid.tile_of_site[problem.pinned_sites], minlength=grid.n_tiles)
         problem._plan_caps = (grid.tile_of_site[problem.gene_sites()[:, 0]], grid.limit - pins)
     kept = problem.__dict__.pop("_envelopes", None)
+    envelope = getattr(problem, "envelope", None)
     try:
-        env = optimised_envelope(problem, {})
+        env = optimised_envelope(problem, options)
     finally:
         problem.gene_class, problem.class_sizes, problem.class_ones = classes
         problem.tile_grid = grid
@@ -82,7 +89,8 @@ def planned_envelope(problem):
         problem.__dict__.pop("_envelopes", None)
         if kept is not None:
             problem._envelopes = kept
-        problem.envelope = None
+        problem.envelope = envelope
+    cache[key] = env
     return env
 
 
