@@ -285,10 +285,7 @@ def tiled_envelope(problem, options: dict):
     t0 = time.perf_counter()
     plan = planned_envelope(problem, options)
     genes = np.zeros(problem.n_genes)
-    order = np.argsort(problem.gene_class, kind="stable")
-    starts = np.searchsorted(problem.gene_class[order], np.arange(problem.class_ones.size + 1))
-    for c, ones in enumerate(problem.class_ones):
-        idx = order[starts[c] : starts[c + 1]]
+    for idx, ones in zip(problem.class_members(), problem.class_ones, strict=True):
         genes[idx] = scale_to_count(plan.genes[idx], int(ones))
     site_p = site_probabilities(problem, genes)
     bound, at = envelope_bound(problem, site_p)

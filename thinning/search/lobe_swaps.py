@@ -364,7 +364,7 @@ class WorstLobes:
         prob = self.problem
         g_score, _ = self.gene_scores(focus)
         offs, ons, gains = [], [], []
-        for idx in _class_members(prob):
+        for idx in prob.class_members():
             on_now = idx[self.genome[idx]]
             off_now = idx[~self.genome[idx]]
             k = min(max_step, on_now.size, off_now.size)
@@ -421,7 +421,7 @@ class WorstLobes:
         prob = self.problem
         g_score, _ = self.gene_scores(focus)
         offs, ons, cls = [], [], []
-        for c, idx in enumerate(_class_members(prob)):
+        for c, idx in enumerate(prob.class_members()):
             on_now = idx[self.genome[idx]]
             off_now = idx[~self.genome[idx]]
             k = min(candidates, on_now.size, off_now.size)
@@ -599,13 +599,6 @@ def polish(problem, tracker, genome, options: dict | None = None, until: float |
             if stalls >= STALL_ROUNDS:
                 break
     return best_g
-
-
-def _class_members(problem) -> list[np.ndarray]:
-    """The genes of each class (ascending), by one sort rather than a scan per class."""
-    order = np.argsort(problem.gene_class, kind="stable")
-    starts = np.searchsorted(problem.gene_class[order], np.arange(problem.class_ones.size + 1))
-    return [order[starts[c] : starts[c + 1]] for c in range(problem.class_ones.size)]
 
 
 def _done(tracker, until) -> bool:
