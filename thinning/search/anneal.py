@@ -130,8 +130,7 @@ def _near_genes(problem, k: int) -> np.ndarray:
     pos = problem.gene_positions()
     g = problem.n_genes
     out = np.empty((g, k), dtype=np.int64)
-    for c in range(problem.class_sizes.size):
-        idx = np.flatnonzero(problem.gene_class == c)
+    for idx in problem.class_members():
         if idx.size < 2:
             out[idx] = idx[:, None]
             continue

@@ -52,15 +52,17 @@ batch, draws : int
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import numbers
+import time
 
 import numpy as np
 from scipy.signal.windows import taylor
 
 from ..errors import SpecError, where
 from .random import DEFAULT_BATCH, _positive_int, best_of_draws
-from .sampling import scale_to_count, systematic
+from .sampling import scale_to_classes, systematic
 
 __all__ = [
     "TAPERS",
@@ -209,11 +211,7 @@ def taper_probabilities(problem, options: dict | None = None) -> np.ndarray:
     sums = np.bincount(problem.site_gene[free], weights=w_site[free], minlength=g)
     counts = np.bincount(problem.site_gene[free], minlength=g)
     w = sums / np.maximum(counts, 1)
-    p = np.zeros(g)
-    for c, ones in enumerate(problem.class_ones):
-        idx = np.flatnonzero(problem.gene_class == c)
-        p[idx] = scale_to_count(w[idx], int(ones))
-    return p
+    return scale_to_classes(problem, w)
 
 
 def draw(problem, p, rng: np.random.Generator, k: int) -> np.ndarray:
@@ -276,17 +274,12 @@ def tiled_envelope(problem, options: dict):
     (tile and orbit size) to the class's count, so every tile's expected count is its planned
     count; its bound recomputed. Solving the programme over per-tile variables instead would
     multiply its variables by the number of tiles (minutes at 65,536 sites)."""
-    import dataclasses
-    import time
-
     from .envelope import envelope_bound, site_probabilities
     from .tile_counts import planned_envelope
 
     t0 = time.perf_counter()
     plan = planned_envelope(problem, options)
-    genes = np.zeros(problem.n_genes)
-    for idx, ones in zip(problem.class_members(), problem.class_ones, strict=True):
-        genes[idx] = scale_to_count(plan.genes[idx], int(ones))
+    genes = scale_to_classes(problem, plan.genes)
     site_p = site_probabilities(problem, genes)
     bound, at = envelope_bound(problem, site_p)
     return dataclasses.replace(
@@ -316,8 +309,7 @@ def starting_layouts(problem, p, rng, draws: int) -> np.ndarray:
 def _shaken(problem, genome, rng, swaps: int) -> np.ndarray:
     """A genome with ``swaps`` random count-preserving swaps per class (at most)."""
     g = genome.copy()
-    for c in range(problem.class_ones.size):
-        idx = np.flatnonzero(problem.gene_class == c)
+    for idx in problem.class_members():
         on, off = idx[g[idx]], idx[~g[idx]]
         k = min(swaps, on.size, off.size)
         if k:

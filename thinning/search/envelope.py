@@ -458,15 +458,11 @@ def _halfplanes(b, theta):
 
 def _gene_probabilities(problem, basis: _Basis, q) -> np.ndarray:
     """Gene probabilities from the programme's variables, each class summing exactly."""
-    from .sampling import scale_to_count
+    from .sampling import scale_to_classes
 
     qq = np.clip(np.append(q, 0.0), 0.0, 1.0)  # index −1 reads the appended 0
     pg = np.clip((qq[basis.gene_vars] * basis.gene_weights).sum(axis=1), 0.0, 1.0)
-    out = np.zeros_like(pg)
-    for c, ones in enumerate(problem.class_ones):
-        idx = np.flatnonzero(problem.gene_class == c)
-        out[idx] = scale_to_count(pg[idx], int(ones))
-    return out
+    return scale_to_classes(problem, pg)
 
 
 def site_probabilities(problem, genes) -> np.ndarray:

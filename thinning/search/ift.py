@@ -201,8 +201,8 @@ class IFTPlan:
         self.free_sites = np.flatnonzero(free)
         self.free_gene = problem.site_gene[free]
         self.classes = [
-            (np.flatnonzero(problem.gene_class == c), int(ones))
-            for c, ones in enumerate(problem.class_ones)
+            (idx, int(ones))
+            for idx, ones in zip(problem.class_members(), problem.class_ones, strict=True)
         ]
         m = int(problem.available_sites.sum())
         n = problem.elements

@@ -388,8 +388,7 @@ class ThinningProblem:
         """k genomes with the exact count in every class, genes drawn uniformly (or, with
         ``weights`` per gene, drawn without replacement in proportion to them)."""
         out = np.zeros((k, self.n_genes), dtype=bool)
-        for c, ones in enumerate(self.class_ones):
-            idx = np.flatnonzero(self.gene_class == c)
+        for idx, ones in zip(self.class_members(), self.class_ones, strict=True):
             if ones == 0:
                 continue
             if weights is None:

@@ -32,6 +32,7 @@ __all__ = [
     "systematic",
     "error_diffusion",
     "scale_to_count",
+    "scale_to_classes",
     "DIFFUSION_FILTERS",
     "ORIENTATIONS",
     "CERTAIN",
@@ -92,8 +93,8 @@ def _check(problem, p) -> np.ndarray:
     if np.any(~np.isfinite(p)) or np.any(p < -1e-12) or np.any(p > 1 + 1e-12):
         raise ValueError("on-probabilities must lie in [0, 1]")
     p = np.clip(p, 0.0, 1.0)
-    for c, ones in enumerate(problem.class_ones):
-        pc = p[problem.gene_class == c]
+    for c, (idx, ones) in enumerate(zip(problem.class_members(), problem.class_ones, strict=True)):
+        pc = p[idx]
         if not math.isclose(float(pc.sum()), int(ones), rel_tol=1e-9, abs_tol=1e-9):
             raise ValueError(
                 f"on-probabilities of class {c} sum to {pc.sum():.6g}, not its {ones} genes on"
@@ -132,9 +133,8 @@ def systematic(problem, p, rng: np.random.Generator, k: int) -> np.ndarray:
     """
     p = _check(problem, p)
     out = np.zeros((k, problem.n_genes), dtype=bool)
-    for c, ones in enumerate(problem.class_ones):
+    for idx, ones in zip(problem.class_members(), problem.class_ones, strict=True):
         ones = int(ones)
-        idx = np.flatnonzero(problem.gene_class == c)
         pc = p[idx]
         sure = pc >= CERTAIN
         out[:, idx[sure]] = True
@@ -158,8 +158,7 @@ def _exact_counts(problem, genome, p) -> np.ndarray:
     """Make every class's count exact: switch off the on-genes of lowest p (or on the
     off-genes of highest p) of a class that has too many (too few)."""
     g = genome.copy()
-    for c, ones in enumerate(problem.class_ones):
-        idx = np.flatnonzero(problem.gene_class == c)
+    for idx, ones in zip(problem.class_members(), problem.class_ones, strict=True):
         on = g[idx]
         extra = int(on.sum()) - int(ones)
         if extra > 0:
@@ -233,6 +232,14 @@ def error_diffusion(
         out = out.T
     genome = out[rows, cols].copy()
     return _exact_counts(problem, genome, p)
+
+
+def scale_to_classes(problem, w: np.ndarray) -> np.ndarray:
+    """Per-gene weights scaled within every class to its count (:func:`scale_to_count`)."""
+    p = np.zeros(problem.n_genes)
+    for idx, ones in zip(problem.class_members(), problem.class_ones, strict=True):
+        p[idx] = scale_to_count(w[idx], int(ones))
+    return p
 
 
 def scale_to_count(w: np.ndarray, ones: int) -> np.ndarray:
